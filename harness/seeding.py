@@ -1,0 +1,138 @@
+"""Deterministic seeding: every random draw of a run comes from its own seed.
+
+A run's seed is a :class:`numpy.random.SeedSequence` given by an entropy value
+and a spawn key. A manifest either lists seeds explicitly (entropy = the seed,
+empty spawn key) or gives a count and a root entropy; then run ``i`` is the
+``i``-th child of ``SeedSequence(root).spawn(count)``, i.e. ``SeedSequence(root,
+spawn_key=(i,))``, so adding seeds never changes the existing ones.
+
+Each run's sequence is spawned into independent named streams (network
+initialisation, exploration, replay sampling, training environment).
+Evaluation episodes use one fixed stream shared by all runs and checkpoints, so
+every checkpoint of every run is scored on the same episode seeds (common
+random numbers). The global ``np.random`` state is never touched.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+
+import numpy as np
+
+__all__ = [
+    "STREAM_NAMES",
+    "RunSeed",
+    "RunStreams",
+    "episode_seeds",
+    "plan_seeds",
+    "run_streams",
+    "validate_seed",
+]
+
+#: Names of the per-run streams, in spawn order. Appending a name keeps the
+#: earlier streams unchanged (SeedSequence children are positional).
+STREAM_NAMES = ("init", "explore", "replay", "env")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class RunSeed:
+    """The seed material of one run: ``SeedSequence(entropy, spawn_key=spawn_key)``."""
+
+    entropy: int
+    spawn_key: tuple[int, ...] = ()
+
+    @property
+    def label(self) -> str:
+        """Short human-readable name: ``"7"`` for an explicit seed, ``"7/3"`` for a spawned one."""
+        if not self.spawn_key:
+            return str(self.entropy)
+        return f"{self.entropy}/" + "/".join(str(k) for k in self.spawn_key)
+
+    def sequence(self) -> np.random.SeedSequence:
+        """A fresh SeedSequence (fresh so that spawning from it is repeatable)."""
+        return np.random.SeedSequence(self.entropy, spawn_key=self.spawn_key)
+
+    def to_json(self) -> dict:
+        return {"entropy": self.entropy, "spawn_key": list(self.spawn_key)}
+
+    @classmethod
+    def from_json(cls, data: dict) -> RunSeed:
+        return cls(int(data["entropy"]), tuple(int(k) for k in data["spawn_key"]))
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class RunStreams:
+    """Independent random streams of one run.
+
+    ``env_seed`` is an integer for ``env.reset(seed=...)`` and
+    ``env.action_space.seed(...)`` of the training environment.
+    """
+
+    init: np.random.Generator
+    explore: np.random.Generator
+    replay: np.random.Generator
+    env_seed: int
+
+
+def validate_seed(seed: object, *, name: str = "seed") -> int:
+    """Return ``seed`` as an int if it is a non-negative integer, else raise ValueError."""
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise ValueError(f"`{name}` must be a non-negative integer, got {seed!r}")
+    return int(seed)
+
+
+def plan_seeds(
+    *, seeds: Sequence[int] | None = None, count: int | None = None, root: int | None = None
+) -> tuple[RunSeed, ...]:
+    """Seeds of all runs of a manifest: an explicit list, or ``count`` children of ``root``.
+
+    Examples
+    --------
+    >>> [s.label for s in plan_seeds(seeds=[3, 1])]
+    ['3', '1']
+    >>> [s.label for s in plan_seeds(count=2, root=42)]
+    ['42/0', '42/1']
+    """
+    if (seeds is None) == (count is None):
+        raise ValueError("give either `seeds` (a list) or `count` with `root`, not both or neither")
+    if seeds is not None:
+        values = [validate_seed(s, name=f"seeds[{i}]") for i, s in enumerate(seeds)]
+        if not values:
+            raise ValueError("`seeds` must list at least one seed, got []")
+        dupes = sorted({v for v in values if values.count(v) > 1})
+        if dupes:
+            raise ValueError(f"`seeds` must not repeat a seed, got duplicates {dupes}")
+        return tuple(RunSeed(v) for v in values)
+    n = validate_seed(count, name="count")
+    if n < 1:
+        raise ValueError(f"`count` must be a positive integer, got {count!r}")
+    if root is None:
+        raise ValueError("`root` is required with `count`")
+    r = validate_seed(root, name="root")
+    return tuple(RunSeed(r, (i,)) for i in range(n))
+
+
+def run_streams(seed: RunSeed) -> RunStreams:
+    """Spawn the named streams of one run from its seed."""
+    children = seed.sequence().spawn(len(STREAM_NAMES))
+    named = dict(zip(STREAM_NAMES, children, strict=True))
+    return RunStreams(
+        init=np.random.default_rng(named["init"]),
+        explore=np.random.default_rng(named["explore"]),
+        replay=np.random.default_rng(named["replay"]),
+        env_seed=int(named["env"].generate_state(1)[0]),
+    )
+
+
+def episode_seeds(root: int, episodes: int) -> tuple[int, ...]:
+    """The evaluation episode seeds: the same for every run and every checkpoint.
+
+    Examples
+    --------
+    >>> len(episode_seeds(0, 5)), episode_seeds(0, 5) == episode_seeds(0, 5)
+    (5, True)
+    """
+    root = validate_seed(root, name="evaluation seed")
+    state = np.random.SeedSequence(root).generate_state(episodes, dtype=np.uint32)
+    return tuple(int(s) for s in state)

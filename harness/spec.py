@@ -1,0 +1,150 @@
+"""What one training run is: the task, the trainer and its resolved config, budget, evaluation, seed.
+
+A :class:`RunSpec` is all a trainer receives. It is built from a manifest by
+``harness.manifest`` (one per seed) and is JSON-serialisable so that it can be
+hashed for the run cache and shipped to worker processes or a cluster.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+from collections.abc import Mapping
+from typing import Any
+
+from harness.seeding import RunSeed, RunStreams, episode_seeds, run_streams
+
+__all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "sha256_of"]
+
+
+def canonical_json(value: Any) -> str:
+    """JSON with sorted keys, no whitespace and exact float repr: the text that hashes are taken of."""
+    return json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
+def sha256_of(value: Any) -> str:
+    """``"sha256:<hex>"`` of the canonical JSON of ``value``."""
+    return "sha256:" + hashlib.sha256(canonical_json(value).encode()).hexdigest()
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class TaskSpec:
+    """A gymnasium task: its id, keyword arguments and episode step limit.
+
+    ``max_episode_steps=None`` keeps the limit registered with gymnasium.
+    """
+
+    id: str
+    kwargs: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+    max_episode_steps: int | None = None
+
+    def to_json(self) -> dict:
+        return {"id": self.id, "kwargs": dict(self.kwargs), "max_episode_steps": self.max_episode_steps}
+
+    @classmethod
+    def from_json(cls, data: Mapping) -> TaskSpec:
+        return cls(data["id"], dict(data["kwargs"]), data["max_episode_steps"])
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class EvaluationPlan:
+    """When and how a run is evaluated.
+
+    Checkpoints are taken at step 0 (the untrained policy), every ``interval``
+    environment steps, and at the end of the budget. Each checkpoint plays
+    ``episodes`` episodes whose seeds come from ``seed`` (the same for every
+    run and checkpoint), acting greedily except with probability ``epsilon``.
+    """
+
+    interval: int
+    episodes: int
+    seed: int = 0
+    epsilon: float = 0.0
+
+    def checkpoint_steps(self, budget: int) -> tuple[int, ...]:
+        """
+        Examples
+        --------
+        >>> EvaluationPlan(interval=400, episodes=5).checkpoint_steps(1000)
+        (0, 400, 800, 1000)
+        """
+        steps = list(range(0, budget + 1, self.interval))
+        if steps[-1] != budget:
+            steps.append(budget)
+        return tuple(steps)
+
+    def episode_seeds(self) -> tuple[int, ...]:
+        return episode_seeds(self.seed, self.episodes)
+
+    def to_json(self) -> dict:
+        return dataclasses.asdict(self)
+
+    @classmethod
+    def from_json(cls, data: Mapping) -> EvaluationPlan:
+        return cls(**data)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class RunSpec:
+    """One training run. Everything in it is part of the run's identity.
+
+    Attributes
+    ----------
+    manifest
+        The manifest's name (for messages and file names only).
+    task, evaluation, budget
+        The task, the evaluation plan and the budget in environment steps.
+    trainer
+        A built-in trainer name (``"dqn"``, ``"tabular-q"``) or a ``"module:function"`` entry point.
+    config
+        The trainer's fully resolved configuration (defaults filled in), JSON-compatible.
+    config_hash
+        SHA-256 of the manifest's resolved configuration (see ``harness.manifest``).
+    seed, index
+        The run's seed material and its position in the manifest's seed list.
+    """
+
+    manifest: str
+    task: TaskSpec
+    trainer: str
+    config: Mapping[str, Any]
+    budget: int
+    evaluation: EvaluationPlan
+    seed: RunSeed
+    index: int
+    config_hash: str
+
+    def streams(self) -> RunStreams:
+        """The run's independent random streams (fresh Generators on each call)."""
+        return run_streams(self.seed)
+
+    def checkpoint_steps(self) -> tuple[int, ...]:
+        return self.evaluation.checkpoint_steps(self.budget)
+
+    def to_json(self) -> dict:
+        return {
+            "manifest": self.manifest,
+            "task": self.task.to_json(),
+            "trainer": self.trainer,
+            "config": dict(self.config),
+            "budget": self.budget,
+            "evaluation": self.evaluation.to_json(),
+            "seed": self.seed.to_json(),
+            "index": self.index,
+            "config_hash": self.config_hash,
+        }
+
+    @classmethod
+    def from_json(cls, data: Mapping) -> RunSpec:
+        return cls(
+            manifest=data["manifest"],
+            task=TaskSpec.from_json(data["task"]),
+            trainer=data["trainer"],
+            config=dict(data["config"]),
+            budget=int(data["budget"]),
+            evaluation=EvaluationPlan.from_json(data["evaluation"]),
+            seed=RunSeed.from_json(data["seed"]),
+            index=int(data["index"]),
+            config_hash=data["config_hash"],
+        )
