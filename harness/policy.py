@@ -1,0 +1,279 @@
+"""The verification policy of a manifest (``[check]``) and published references (``[[reference]]``).
+
+:class:`GatePolicy` says which metrics are checked, at which error rate, how
+large a difference still counts as equivalent (the margin) and which verdicts
+fail the gate. :class:`PublishedReference` holds summary statistics quoted in a
+paper (mean, sd or standard error, number of seeds, where it was published),
+against which a rerun can be tested instead of a stored baseline.
+
+Both are frozen values; ``__post_init__`` raises
+:class:`harness.errors.ConfigError` naming the key, and ``from_table`` also
+rejects unknown keys with a "did you mean" hint.
+
+The margin
+----------
+The margin is either absolute (``margin``, in the metric's units) or a share of
+the span between the random-policy return and the task's reward threshold
+(``margin_share``; the default is ``0.1``). The span is ``|threshold - floor|``,
+so it is positive for tasks whose returns are negative (Acrobot: random about
+-500, threshold -100, span 400; MountainCar: -200 and -110, span 90). The floor
+is the mean return of a uniformly random policy on the evaluation episodes
+unless the manifest gives ``floor``. For ``steps-to-threshold`` (measured in
+environment steps) a share margin is a share of the training budget.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping
+from typing import Any
+
+from harness.errors import ConfigError, did_you_mean
+
+__all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "GatePolicy", "PublishedReference"]
+
+#: Metric names understood by the checks (see ``harness.metrics.METRICS``).
+KNOWN_METRICS = ("final", "auc", "steps-to-threshold")
+
+#: Default margin: a tenth of the span between random-policy return and reward threshold.
+DEFAULT_MARGIN_SHARE = 0.1
+
+
+def _is_number(value: object) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _require_fraction(value: object, key: str, *, open_low: bool = True, upper: float = 1.0) -> None:
+    if not _is_number(value) or not math.isfinite(value) or not (0 < value < upper if open_low else 0 <= value < upper):
+        raise ConfigError(f"must be a number strictly between 0 and {upper:g}, got {value!r}", key=key)
+
+
+def _require_optional_finite(value: object, key: str, *, positive: bool = False) -> None:
+    if value is None:
+        return
+    if not _is_number(value) or not math.isfinite(value) or (positive and value <= 0):
+        kind = "a positive finite number" if positive else "a finite number"
+        raise ConfigError(f"must be {kind}, got {value!r}", key=key)
+
+
+def _from_table(cls: type, table: Mapping[str, Any], section: str) -> Any:
+    names = [f.name for f in dataclasses.fields(cls)]
+    for key in table:
+        if key not in names:
+            raise ConfigError(f"unknown key {key!r}.{did_you_mean(key, names)}", key=f"{section}.{key}")
+    values = dict(table)
+    for field in dataclasses.fields(cls):
+        if field.name in values and isinstance(values[field.name], list):
+            values[field.name] = tuple(values[field.name])
+    try:
+        return cls(**values)
+    except ConfigError as exc:
+        raise ConfigError(str(exc).split(": ", 1)[-1], key=f"{section}.{exc.key}") from None
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class GatePolicy:
+    """How verification decides: the ``[check]`` table of a manifest.
+
+    Attributes
+    ----------
+    metrics
+        Metrics checked statistically, from ``"final"``, ``"auc"`` and ``"steps-to-threshold"``.
+    alpha
+        Family-wise error rate of the checks (Holm-corrected across metrics).
+    margin
+        Absolute equivalence margin in the metric's units; excludes ``margin_share``.
+    margin_share
+        Margin as a share of the span between random-policy return and reward threshold
+        (default ``0.1`` when neither ``margin`` nor ``margin_share`` is given).
+    margins
+        Absolute margins per metric, overriding the two above for the metrics it names.
+    floor
+        Random-policy return used for the span; ``None`` measures it on the evaluation episodes.
+    threshold
+        Return that counts as solved; ``None`` takes the task's registered reward threshold.
+    ignore_small
+        Do not fail on a significant worsening smaller than the margin.
+    strict
+        Also fail on an inconclusive verdict (too few seeds to tell).
+    final_share
+        Share of the last checkpoints averaged into the ``"final"`` metric.
+    power
+        Power at which the minimum detectable difference and the seeds needed are given.
+    bitwise
+        Run the exact check when config and pins match.
+    locate
+        Look for the first checkpoint range where the candidate falls significantly below.
+    permutations
+        Permutations of the max-statistic test used by ``locate``.
+    """
+
+    metrics: tuple[str, ...] = ("final", "auc")
+    alpha: float = 0.05
+    margin: float | None = None
+    margin_share: float | None = None
+    margins: Mapping[str, float] = dataclasses.field(default_factory=dict)
+    floor: float | None = None
+    threshold: float | None = None
+    ignore_small: bool = False
+    strict: bool = False
+    final_share: float = 0.1
+    power: float = 0.8
+    bitwise: bool = True
+    locate: bool = True
+    permutations: int = 2000
+
+    def __post_init__(self) -> None:
+        if isinstance(self.metrics, str) or not isinstance(self.metrics, (tuple, list)) or not self.metrics:
+            raise ConfigError(f"must be a non-empty list of metric names, got {self.metrics!r}", key="metrics")
+        for name in self.metrics:
+            if name not in KNOWN_METRICS:
+                raise ConfigError(f"unknown metric {name!r}.{did_you_mean(str(name), KNOWN_METRICS)}", key="metrics")
+        if len(set(self.metrics)) != len(self.metrics):
+            raise ConfigError(f"lists a metric twice: {list(self.metrics)}", key="metrics")
+        object.__setattr__(self, "metrics", tuple(self.metrics))
+        _require_fraction(self.alpha, "alpha", upper=0.5)
+        _require_optional_finite(self.margin, "margin", positive=True)
+        _require_optional_finite(self.floor, "floor")
+        _require_optional_finite(self.threshold, "threshold")
+        if self.margin_share is not None:
+            _require_fraction(self.margin_share, "margin_share")
+        if self.margin is not None and self.margin_share is not None:
+            raise ConfigError("give either `margin` (absolute) or `margin_share`, not both", key="margin")
+        if not isinstance(self.margins, Mapping):
+            raise ConfigError(f"must be a table of metric = margin, got {self.margins!r}", key="margins")
+        for name, value in self.margins.items():
+            if name not in KNOWN_METRICS:
+                raise ConfigError(f"unknown metric {name!r}.{did_you_mean(str(name), KNOWN_METRICS)}", key="margins")
+            _require_optional_finite(value, f"margins.{name}", positive=True)
+        object.__setattr__(self, "margins", dict(self.margins))
+        for key in ("ignore_small", "strict", "bitwise", "locate"):
+            if not isinstance(getattr(self, key), bool):
+                raise ConfigError(f"must be true or false, got {getattr(self, key)!r}", key=key)
+        _require_fraction(self.final_share, "final_share", upper=1.0 + 1e-12)
+        _require_fraction(self.power, "power")
+        if isinstance(self.permutations, bool) or not isinstance(self.permutations, int) or self.permutations < 99:
+            raise ConfigError(f"must be an integer of at least 99, got {self.permutations!r}", key="permutations")
+
+    @classmethod
+    def from_table(cls, table: Mapping[str, Any], *, section: str = "check") -> GatePolicy:
+        """Build from a manifest's ``[check]`` table, rejecting unknown keys."""
+        return _from_table(cls, table, section)
+
+    def to_json(self) -> dict:
+        data = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
+        data["metrics"] = list(self.metrics)
+        data["margins"] = dict(self.margins)
+        return data
+
+    def margin_for(self, metric: str, *, floor: float | None, threshold: float | None, budget: int) -> float:
+        """The equivalence margin of ``metric`` in its own units.
+
+        Parameters
+        ----------
+        metric
+            A metric name.
+        floor, threshold
+            Random-policy return and reward threshold (this policy's own values win).
+        budget
+            Training budget in environment steps (the span of ``steps-to-threshold``).
+
+        Raises
+        ------
+        ConfigError
+            If a share margin is asked for but floor or threshold are unknown or equal.
+
+        Examples
+        --------
+        >>> GatePolicy().margin_for("final", floor=-500.0, threshold=-100.0, budget=1000)
+        40.0
+        >>> GatePolicy(margin=5.0).margin_for("auc", floor=None, threshold=None, budget=1000)
+        5.0
+        """
+        if metric in self.margins:
+            return float(self.margins[metric])
+        if self.margin is not None:
+            return float(self.margin)
+        share = DEFAULT_MARGIN_SHARE if self.margin_share is None else self.margin_share
+        if metric == "steps-to-threshold":
+            return share * budget
+        low = self.floor if self.floor is not None else floor
+        high = self.threshold if self.threshold is not None else threshold
+        if low is None or high is None or high == low:
+            raise ConfigError(
+                f"cannot size the margin of {metric!r} as a share of the span between the random-policy "
+                f"return ({low!r}) and the reward threshold ({high!r}); give `margin` (absolute, in the "
+                "metric's units) or set `floor` and `threshold` in [check]",
+                key="margin",
+            )
+        return share * abs(high - low)
+
+    def with_overrides(self, **changes: Any) -> GatePolicy:
+        """A copy with the given fields replaced (``None`` values are ignored): command-line overrides."""
+        given = {k: v for k, v in changes.items() if v is not None}
+        if "margin" in given:
+            given.setdefault("margin_share", None)
+        if "margin_share" in given:
+            given.setdefault("margin", None)
+        return dataclasses.replace(self, **given)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class PublishedReference:
+    """Summary statistics quoted in a publication: one ``[[reference]]`` table.
+
+    Attributes
+    ----------
+    metric
+        Which metric the numbers are of (``"final"``, ``"auc"`` or ``"steps-to-threshold"``).
+    mean
+        The published mean over seeds.
+    sd, se
+        The published standard deviation across seeds, or the standard error; exactly one.
+    seeds
+        The number of seeds the published numbers are over (at least 2).
+    source
+        Where it was published (authors, year, table or figure).
+    """
+
+    metric: str
+    mean: float
+    seeds: int
+    source: str
+    sd: float | None = None
+    se: float | None = None
+
+    def __post_init__(self) -> None:
+        if self.metric not in KNOWN_METRICS:
+            raise ConfigError(f"unknown metric {self.metric!r}.{did_you_mean(str(self.metric), KNOWN_METRICS)}", key="metric")
+        _require_optional_finite(self.mean, "mean")
+        if self.mean is None:
+            raise ConfigError("is required: the published mean", key="mean")
+        if (self.sd is None) == (self.se is None):
+            raise ConfigError("give exactly one of `sd` (standard deviation) or `se` (standard error)", key="sd")
+        _require_optional_finite(self.sd, "sd")
+        _require_optional_finite(self.se, "se")
+        spread = self.sd if self.sd is not None else self.se
+        if spread < 0:
+            raise ConfigError(f"must not be negative, got {spread!r}", key="sd" if self.sd is not None else "se")
+        if isinstance(self.seeds, bool) or not isinstance(self.seeds, int) or self.seeds < 2:
+            raise ConfigError(f"must be an integer of at least 2, got {self.seeds!r}", key="seeds")
+        if not isinstance(self.source, str) or not self.source.strip():
+            raise ConfigError("must name where the numbers were published (authors, year, table)", key="source")
+
+    @property
+    def std(self) -> float:
+        """The standard deviation across seeds (from ``se`` as ``se * sqrt(seeds)`` if needed)."""
+        return float(self.sd) if self.sd is not None else float(self.se) * math.sqrt(self.seeds)
+
+    @classmethod
+    def from_table(cls, table: Mapping[str, Any], *, section: str = "reference") -> PublishedReference:
+        """Build from one ``[[reference]]`` table, rejecting unknown and missing keys."""
+        for key in ("metric", "mean", "seeds", "source"):
+            if key not in table:
+                raise ConfigError(f"is required ({cls.__doc__.splitlines()[0].strip()})", key=f"{section}.{key}")
+        return _from_table(cls, table, section)
+
+    def to_json(self) -> dict:
+        return dataclasses.asdict(self)
