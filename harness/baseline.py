@@ -1,0 +1,291 @@
+"""Baselines: the stored learning curves a manifest's reruns are verified against.
+
+A baseline is one JSON file, ``baselines/<manifest name>.json`` by default,
+laid out to be read in a code review: per-seed curves (one line per
+checkpoint), the resolved configuration and its hash, the versions the curves
+were produced with, the platform, the date, the rl-harness version and a
+checksum of the content. The checksum is ``sha256:`` of the canonical JSON
+(``harness.spec.canonical_json``) of every field except ``checksum`` itself, so
+reformatting the file keeps it valid while changing any value (or cutting the
+file short) makes :func:`read_baseline` refuse it.
+
+Writes are atomic (temporary file in the same folder, then ``os.replace``) and
+refuse to replace an existing baseline unless ``overwrite=True``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime
+import json
+import os
+import platform
+import tempfile
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from harness import __version__
+from harness.curves import LearningCurve
+from harness.errors import BaselineError
+from harness.seeding import RunSeed
+from harness.spec import sha256_of
+
+__all__ = [
+    "BASELINE_SCHEMA",
+    "Baseline",
+    "SeedCurve",
+    "baseline_from_results",
+    "default_baseline_path",
+    "read_baseline",
+    "write_baseline",
+]
+
+#: Schema tag of baseline files; bumped on any incompatible change of the layout.
+BASELINE_SCHEMA = "rlharness.baseline/1"
+
+_RECORD_FIX = "record it with `rlharness record MANIFEST`"
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class SeedCurve:
+    """One seed's learning curve."""
+
+    seed: RunSeed
+    curve: LearningCurve
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Baseline:
+    """A recorded baseline (see the module docstring for the file layout).
+
+    Attributes
+    ----------
+    manifest, config_hash, config
+        The manifest's name, its config hash and the resolved config the hash was taken of.
+    versions
+        Installed versions when the curves were produced (python, numpy, ..., BLAS).
+    platform
+        Operating system, machine and Python implementation of the recording host.
+    recorded
+        UTC date and time of recording, ISO 8601.
+    harness_version
+        rl-harness version that recorded it.
+    runs
+        Per-seed curves in the manifest's seed order.
+    path
+        The file it was read from or written to, if any (not part of the content).
+    """
+
+    manifest: str
+    config_hash: str
+    config: Mapping[str, Any]
+    versions: Mapping[str, str]
+    platform: Mapping[str, str]
+    recorded: str
+    harness_version: str
+    runs: tuple[SeedCurve, ...]
+    path: Path | None = dataclasses.field(default=None, compare=False)
+
+    def content(self) -> dict:
+        """The JSON content without the checksum."""
+        return {
+            "schema": BASELINE_SCHEMA,
+            "manifest": self.manifest,
+            "config_hash": self.config_hash,
+            "config": self.config,
+            "versions": dict(self.versions),
+            "platform": dict(self.platform),
+            "recorded": self.recorded,
+            "harness_version": self.harness_version,
+            "runs": [{"seed": r.seed.to_json(), "curve": r.curve.to_json()} for r in self.runs],
+        }
+
+    @property
+    def checksum(self) -> str:
+        return sha256_of(self.content())
+
+
+def default_baseline_path(manifest_name: str, folder: str | os.PathLike = "baselines") -> Path:
+    """Where the baseline of a manifest lives: ``<folder>/<manifest name>.json``."""
+    return Path(folder) / f"{manifest_name}.json"
+
+
+def _host_platform() -> dict[str, str]:
+    return {
+        "system": platform.platform(),
+        "machine": platform.machine(),
+        "python": f"{platform.python_implementation()} {platform.python_version()}",
+    }
+
+
+def baseline_from_results(manifest: Any, results: Any, *, recorded: str | None = None) -> Baseline:
+    """Build a baseline from a manifest and its complete result set.
+
+    Parameters
+    ----------
+    manifest
+        A ``harness.manifest.Manifest``.
+    results
+        A ``harness.store.ResultSet`` of that manifest.
+    recorded
+        ISO date to store; the current UTC time by default.
+
+    Raises
+    ------
+    BaselineError
+        If the results belong to another configuration, a seed is missing or failed,
+        the curves have different checkpoint grids, or the runs were produced with
+        different installed versions.
+    """
+    where = f"results of {results.manifest!r}"
+    if results.config_hash != manifest.config_hash:
+        raise BaselineError(
+            f"{where} have config hash {results.config_hash}, but the manifest {manifest.name!r} has "
+            f"{manifest.config_hash}: rerun the manifest (`rlharness run`) before recording"
+        )
+    failed = results.failed()
+    if failed:
+        labels = ", ".join(r.spec.seed.label for r in failed)
+        raise BaselineError(f"{where}: seeds {labels} failed; a baseline needs every seed: fix the failures and rerun")
+    done = {r.spec.seed: r for r in results.completed()}
+    missing = [s.label for s in manifest.seeds if s not in done]
+    if missing:
+        raise BaselineError(
+            f"{where}: {len(missing)} of the manifest's {len(manifest.seeds)} seeds have no result "
+            f"({', '.join(missing)}); run them first (`rlharness run`)"
+        )
+    records = [done[s] for s in manifest.seeds]
+    grids = {tuple(int(x) for x in r.curve.steps) for r in records}
+    if len(grids) != 1:
+        raise BaselineError(f"{where}: the seeds' curves have different checkpoint grids {sorted(grids)}")
+    versions = {sha256_of(dict(r.versions)): dict(r.versions) for r in records}
+    if len(versions) != 1:
+        raise BaselineError(
+            f"{where}: the seeds were run with different installed versions; clear the cache and rerun all seeds"
+        )
+    return Baseline(
+        manifest=manifest.name,
+        config_hash=manifest.config_hash,
+        config=manifest.resolved_config(),
+        versions=next(iter(versions.values())),
+        platform=_host_platform(),
+        recorded=recorded or datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        harness_version=__version__,
+        runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in records),
+    )
+
+
+def _render(value: Any, indent: int = 0) -> str:
+    """JSON with dicts and lists of containers broken over lines and lists of scalars on one line."""
+    pad = "  " * (indent + 1)
+    if isinstance(value, Mapping):
+        if not value:
+            return "{}"
+        items = [f"{pad}{json.dumps(k)}: {_render(v, indent + 1)}" for k, v in value.items()]
+        return "{\n" + ",\n".join(items) + "\n" + "  " * indent + "}"
+    if isinstance(value, (list, tuple)) and any(isinstance(v, (Mapping, list, tuple)) for v in value):
+        items = [pad + _render(v, indent + 1) for v in value]
+        return "[\n" + ",\n".join(items) + "\n" + "  " * indent + "]"
+    return json.dumps(value, allow_nan=False)
+
+
+def write_baseline(baseline: Baseline, path: str | os.PathLike, *, overwrite: bool = False) -> Path:
+    """Write ``baseline`` to ``path`` atomically; refuse to replace a file unless ``overwrite``.
+
+    Raises
+    ------
+    BaselineError
+        If ``path`` exists and ``overwrite`` is false; nothing is written then.
+    """
+    path = Path(path)
+    if path.exists() and not overwrite:
+        raise BaselineError(
+            f"{path}: a baseline already exists (recorded for {_describe_existing(path)}); it is kept. "
+            "Pass --overwrite (overwrite=True) to replace it, or choose another path"
+        )
+    content = baseline.content()
+    content["checksum"] = sha256_of(baseline.content())
+    text = _render(content) + "\n"
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def _describe_existing(path: Path) -> str:
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+        return f"{data.get('manifest')!r} on {data.get('recorded')}"
+    except (OSError, ValueError, AttributeError):
+        return "an unreadable file"
+
+
+def read_baseline(path: str | os.PathLike, *, manifest_name: str | None = None) -> Baseline:
+    """Read and check a baseline file.
+
+    Parameters
+    ----------
+    path
+        The baseline file.
+    manifest_name
+        If given, the baseline must belong to this manifest.
+
+    Raises
+    ------
+    BaselineError
+        If the file is missing, truncated or not JSON, of an unknown schema, fails its
+        checksum (edited by hand), or belongs to another manifest.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise BaselineError(f"{path}: no baseline found; {_RECORD_FIX} (or pass the right --baseline path)")
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except json.JSONDecodeError as exc:
+        raise BaselineError(
+            f"{path}: is truncated or not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}); "
+            f"restore it from version control or {_RECORD_FIX} --overwrite"
+        ) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise BaselineError(f"{path}: cannot be read ({exc})") from None
+    if not isinstance(data, dict) or data.get("schema") != BASELINE_SCHEMA:
+        found = data.get("schema") if isinstance(data, dict) else type(data).__name__
+        raise BaselineError(f"{path}: [schema] is {found!r}, expected {BASELINE_SCHEMA!r}: not a baseline of this version")
+    stored = data.pop("checksum", None)
+    actual = sha256_of(data)
+    if stored != actual:
+        raise BaselineError(
+            f"{path}: [checksum] does not match the content (stored {stored}, computed {actual}): the file was "
+            f"edited or damaged; restore it from version control, or {_RECORD_FIX} --overwrite if the change is intended"
+        )
+    try:
+        baseline = Baseline(
+            manifest=str(data["manifest"]),
+            config_hash=str(data["config_hash"]),
+            config=data["config"],
+            versions={str(k): str(v) for k, v in data["versions"].items()},
+            platform={str(k): str(v) for k, v in data["platform"].items()},
+            recorded=str(data["recorded"]),
+            harness_version=str(data["harness_version"]),
+            runs=tuple(
+                SeedCurve(RunSeed.from_json(r["seed"]), LearningCurve.from_json(r["curve"])) for r in data["runs"]
+            ),
+            path=path,
+        )
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
+        raise BaselineError(f"{path}: malformed content ({type(exc).__name__}: {exc}); {_RECORD_FIX} --overwrite") from None
+    if manifest_name is not None and baseline.manifest != manifest_name:
+        raise BaselineError(
+            f"{path}: [manifest] is {baseline.manifest!r}, but it is being used for manifest {manifest_name!r}: "
+            f"pass the baseline of {manifest_name!r} (or {_RECORD_FIX})"
+        )
+    return baseline
