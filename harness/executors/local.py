@@ -1,0 +1,191 @@
+"""The local executor: long-lived worker processes on this machine, one task each at a time.
+
+Each worker is a :mod:`multiprocessing` process with its own pipe (the model is
+gymnasium's ``AsyncVectorEnv`` worker loop). The parent knows which task every
+worker holds, so it can tell exactly which runs a dead worker (killed, out of
+memory) or an over-time worker took with it: those runs are reported failed
+with the reason, the worker is replaced, and the other workers carry on. A
+worker sends a checkpoint event after every evaluation and its result at the
+end; it ignores SIGINT so that Ctrl-C is handled once, by the parent, which
+stops the workers.
+
+The ``context`` is explicit: ``"forkserver"`` by default where available (safe
+with the threads of a live progress display, and cheap per worker), else
+``"spawn"``.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import multiprocessing.connection as mpc
+import os
+import signal
+import time
+from collections.abc import Sequence
+from multiprocessing.context import BaseContext
+
+from harness.executors.base import RunEvent, Task, WorkerResult
+from harness.executors.work import run_task
+
+__all__ = ["LocalExecutor", "default_context", "worker_main"]
+
+
+def default_context() -> str:
+    """``"forkserver"`` where the platform offers it, else ``"spawn"``."""
+    return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
+
+
+def worker_main(conn: mpc.Connection) -> None:
+    """Loop of a worker process: receive a task payload, train it, send events and the result."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    def emit(index: int, seed: str, step: int, mean: float) -> None:
+        conn.send(("checkpoint", (index, seed, step, mean)))
+
+    while True:
+        try:
+            payload = conn.recv()
+        except EOFError:
+            return
+        if payload is None:
+            return
+        conn.send(("done", run_task(payload, emit)))
+
+
+def _death_reason(exitcode: int | None) -> str:
+    if exitcode is not None and exitcode < 0:
+        try:
+            how = f"killed by signal {signal.Signals(-exitcode).name}"
+        except ValueError:
+            how = f"killed by signal {-exitcode}"
+    else:
+        how = f"exit code {exitcode}"
+    return (
+        f"worker process died ({how}) while training this run; "
+        "a kill or the out-of-memory killer are the usual causes"
+    )
+
+
+class _Worker:
+    __slots__ = ("conn", "process", "started", "task")
+
+    def __init__(self, ctx: BaseContext):
+        self.conn, child = ctx.Pipe(duplex=True)
+        self.process = ctx.Process(target=worker_main, args=(child,), daemon=True, name="rlharness-worker")
+        self.process.start()
+        child.close()
+        self.task: Task | None = None
+        self.started = 0.0
+
+    def stop(self, *, kill: bool) -> None:
+        if kill:
+            self.process.kill()
+        else:
+            try:
+                self.conn.send(None)
+            except OSError:
+                self.process.kill()
+        self.process.join(timeout=5)
+        if self.process.is_alive():
+            self.process.kill()
+            self.process.join()
+        self.conn.close()
+
+
+class LocalExecutor:
+    """Run tasks in ``workers`` local processes.
+
+    Parameters
+    ----------
+    workers
+        Number of worker processes; ``None`` means one per core (``os.cpu_count()``).
+    context
+        A :mod:`multiprocessing` start method name or context; ``None`` means :func:`default_context`.
+    """
+
+    def __init__(self, workers: int | None = None, *, context: str | BaseContext | None = None):
+        if workers is None:
+            workers = os.cpu_count() or 1
+        if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+            raise ValueError(f"`workers` must be a positive integer, got {workers!r}")
+        if context is None or isinstance(context, str):
+            name = context or default_context()
+            if name not in mp.get_all_start_methods():
+                raise ValueError(f"`context` must be one of {tuple(mp.get_all_start_methods())}, got {name!r}")
+            context = mp.get_context(name)
+        self.workers = workers
+        self._ctx = context
+        self._pool: list[_Worker] = []
+
+    def capacity(self) -> int:
+        return self.workers - self.pending()
+
+    def pending(self) -> int:
+        return sum(1 for w in self._pool if w.task is not None)
+
+    def submit(self, task: Task) -> None:
+        if self.capacity() < 1:
+            raise RuntimeError("no free worker: check capacity() before submit()")
+        worker = next((w for w in self._pool if w.task is None), None)
+        if worker is None:
+            worker = _Worker(self._ctx)
+            self._pool.append(worker)
+        worker.task, worker.started = task, time.monotonic()
+        worker.conn.send(task.payload())
+
+    def poll(self, timeout: float) -> Sequence[RunEvent | WorkerResult]:
+        busy = [w for w in self._pool if w.task is not None]
+        if not busy:
+            return []
+        deadlines = [w.started + w.task.deadline_seconds for w in busy if w.task.deadline_seconds is not None]
+        if deadlines:
+            timeout = max(0.0, min(timeout, min(deadlines) - time.monotonic()))
+        ready = set(mpc.wait([w.conn for w in busy] + [w.process.sentinel for w in busy], timeout))
+        out: list[RunEvent | WorkerResult] = []
+        for w in busy:
+            if w.conn in ready or w.process.sentinel in ready:
+                out.extend(self._drain(w))
+        now = time.monotonic()
+        for w in busy:
+            limit = w.task.deadline_seconds if w.task is not None else None
+            if limit is not None and now - w.started >= limit:
+                reason = (
+                    f"exceeded the time limit of {w.task.time_limit:g} s per run "
+                    f"({limit:g} s for this task of {len(w.task.specs)} run(s)); the worker was stopped"
+                )
+                out.extend(WorkerResult.failed_all(w.task, reason, wall_seconds=now - w.started))
+                self._retire(w, kill=True)
+        return out
+
+    def _drain(self, w: _Worker) -> list[RunEvent | WorkerResult]:
+        out: list[RunEvent | WorkerResult] = []
+        try:
+            while w.task is not None and w.conn.poll():
+                kind, data = w.conn.recv()
+                if kind == "checkpoint":
+                    index, seed, step, mean = data
+                    out.append(RunEvent("checkpoint", index, seed, step=step, mean_return=mean))
+                else:
+                    out.extend(WorkerResult.from_plain(data))
+                    w.task = None
+        except (EOFError, OSError):
+            pass
+        if w.task is not None and not w.process.is_alive():
+            w.process.join()
+            reason = _death_reason(w.process.exitcode)
+            out.extend(WorkerResult.failed_all(w.task, reason, wall_seconds=time.monotonic() - w.started))
+            self._retire(w, kill=True)
+        return out
+
+    def _retire(self, w: _Worker, *, kill: bool) -> None:
+        w.task = None
+        w.stop(kill=kill)
+        self._pool.remove(w)
+
+    def worker_pids(self) -> tuple[int, ...]:
+        """Process ids of the workers now training (for diagnostics and fault-injection tests)."""
+        return tuple(w.process.pid for w in self._pool if w.task is not None)
+
+    def close(self) -> None:
+        for w in list(self._pool):
+            self._retire(w, kill=w.task is not None)

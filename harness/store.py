@@ -1,0 +1,343 @@
+"""Results on disk: one versioned JSON file per seed plus an index, written atomically.
+
+A results folder (default ``results/<manifest name>/``) holds
+
+``seed-<label>.json``
+    One run: its :class:`~harness.spec.RunSpec`, status, learning curve (per
+    checkpoint the step, the mean and every evaluation return), failure reason
+    and the installed versions it ran with. Nothing time-dependent goes in, so
+    the same run gives the same bytes whatever the worker count, executor,
+    order or resumption.
+``index.json``
+    The manifest name, config hash and, per seed in the manifest's order, the
+    file, its SHA-256, status, where the record came from (trained, cache,
+    resumed) and the wall time. Written last, when every seed has a record.
+
+Every file carries a ``schema`` field; readers refuse unknown schemas, files
+whose checksum does not match the index and records that contradict the
+index, with a :class:`~harness.errors.ResultsError` naming the file and the fix.
+Writes go to a temporary file in the same folder and are renamed into place.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import math
+import os
+import re
+import secrets
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from harness.curves import Checkpoint, LearningCurve
+from harness.errors import ResultsError
+from harness.spec import RunSpec
+
+__all__ = [
+    "INDEX_FILE",
+    "RECORD_SCHEMA",
+    "RESULTS_SCHEMA",
+    "ResultSet",
+    "RunRecord",
+    "atomic_write_text",
+    "read_index",
+    "read_record",
+    "read_results",
+    "record_file_name",
+    "record_from_json",
+    "record_text",
+    "write_index",
+    "write_record",
+    "write_results",
+]
+
+RECORD_SCHEMA = "rl-harness/run/1"
+RESULTS_SCHEMA = "rl-harness/results/1"
+INDEX_FILE = "index.json"
+STATUSES = ("ok", "failed")
+_UNSAFE = re.compile(r"[^A-Za-z0-9_.-]")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class RunRecord:
+    """The outcome of one training run.
+
+    Attributes
+    ----------
+    spec
+        The run that was asked for.
+    status
+        ``"ok"`` or ``"failed"``.
+    curve
+        The learning curve; ``None`` when the run failed.
+    failure
+        Why the run failed (the traceback for exceptions); ``None`` when it succeeded.
+    versions
+        The installed versions the run trained with (see ``harness.pins``).
+    """
+
+    spec: RunSpec
+    status: str
+    curve: LearningCurve | None
+    failure: str | None
+    versions: Mapping[str, str]
+
+    def __post_init__(self) -> None:
+        if self.status not in STATUSES:
+            raise ValueError(f"`status` must be one of {STATUSES}, got {self.status!r}")
+        if (self.status == "ok") != (self.curve is not None):
+            raise ValueError(f"a run with status {self.status!r} must {'' if self.status == 'ok' else 'not '}have a curve")
+        if (self.status == "failed") != (self.failure is not None):
+            raise ValueError(f"a run with status {self.status!r} must {'' if self.status == 'failed' else 'not '}give a failure reason")
+
+    @property
+    def ok(self) -> bool:
+        return self.status == "ok"
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class ResultSet:
+    """Every run of one manifest, in the manifest's seed order."""
+
+    manifest: str
+    config_hash: str
+    records: tuple[RunRecord, ...]
+
+    def __post_init__(self) -> None:
+        indices = [r.spec.index for r in self.records]
+        if indices != list(range(len(indices))):
+            raise ValueError(f"records must be in seed order 0..{len(indices) - 1}, got indices {indices}")
+        for r in self.records:
+            if r.spec.config_hash != self.config_hash or r.spec.manifest != self.manifest:
+                raise ValueError(
+                    f"record of seed {r.spec.seed.label} belongs to {r.spec.manifest!r} "
+                    f"({r.spec.config_hash}), not {self.manifest!r} ({self.config_hash})"
+                )
+
+    def completed(self) -> tuple[RunRecord, ...]:
+        """The runs that finished with a curve."""
+        return tuple(r for r in self.records if r.ok)
+
+    def failed(self) -> tuple[RunRecord, ...]:
+        """The runs that failed (exception, non-finite returns, time limit, dead worker)."""
+        return tuple(r for r in self.records if not r.ok)
+
+
+def record_file_name(spec: RunSpec) -> str:
+    """``seed-<label>.json`` with the label made file-safe (``"42/3"`` -> ``seed-42-3.json``)."""
+    return "seed-" + _UNSAFE.sub("-", spec.seed.label.replace("/", "-")) + ".json"
+
+
+def atomic_write_text(path: Path, text: str) -> None:
+    """Write ``text`` to ``path`` through a temporary file in the same folder and ``os.replace``.
+
+    Readers see either the old file or the complete new one, never a partial write.
+    """
+    path = Path(path)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.{secrets.token_hex(6)}.tmp")
+    try:
+        with open(tmp, "x", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+
+
+def _dumps(data: Any) -> str:
+    return json.dumps(data, indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def record_text(record: RunRecord) -> str:
+    """The exact file content of one run (deterministic: same record, same bytes)."""
+    curve = None
+    if record.curve is not None:
+        curve = [
+            {"step": c.step, "mean": c.mean, "returns": list(c.returns)} for c in record.curve.checkpoints
+        ]
+    return _dumps(
+        {
+            "schema": RECORD_SCHEMA,
+            "spec": record.spec.to_json(),
+            "status": record.status,
+            "curve": curve,
+            "failure": record.failure,
+            "versions": dict(sorted(record.versions.items())),
+        }
+    )
+
+
+def record_from_json(data: Any, *, where: str) -> RunRecord:
+    """Rebuild a :class:`RunRecord` from its JSON; ``where`` names the source in errors."""
+    if not isinstance(data, dict) or data.get("schema") != RECORD_SCHEMA:
+        found = data.get("schema") if isinstance(data, dict) else type(data).__name__
+        raise ResultsError(
+            f"{where}: not an rl-harness run record (schema {found!r}, expected {RECORD_SCHEMA!r}); "
+            "delete it and run the manifest again"
+        )
+    try:
+        curve = None
+        if data["curve"] is not None:
+            checkpoints = []
+            for c in data["curve"]:
+                cp = Checkpoint(int(c["step"]), tuple(float(r) for r in c["returns"]))
+                if not math.isclose(cp.mean, float(c["mean"]), rel_tol=1e-12, abs_tol=1e-12):
+                    raise ValueError(f"checkpoint at step {cp.step}: stored mean {c['mean']} != mean of returns {cp.mean}")
+                checkpoints.append(cp)
+            curve = LearningCurve(tuple(checkpoints))
+        return RunRecord(
+            spec=RunSpec.from_json(data["spec"]),
+            status=data["status"],
+            curve=curve,
+            failure=data["failure"],
+            versions={str(k): str(v) for k, v in data["versions"].items()},
+        )
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
+        raise ResultsError(f"{where}: malformed run record ({type(exc).__name__}: {exc}); delete it and run the manifest again") from exc
+
+
+def _load_json(path: Path) -> tuple[Any, str]:
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ResultsError(f"{path}: file not found; run the manifest (`rlharness run`) to create it") from None
+    try:
+        return json.loads(text), text
+    except json.JSONDecodeError as exc:
+        raise ResultsError(f"{path}: not valid JSON ({exc}); the file is damaged, delete it and run the manifest again") from exc
+
+
+def write_record(folder: str | os.PathLike, record: RunRecord) -> Path:
+    """Write one run's file into ``folder`` (created if needed), atomically; return its path."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / record_file_name(record.spec)
+    atomic_write_text(path, record_text(record))
+    return path
+
+
+def read_record(path: str | os.PathLike) -> RunRecord:
+    """Read one run's file; :class:`ResultsError` if it is missing, damaged or of another schema."""
+    path = Path(path)
+    data, _ = _load_json(path)
+    return record_from_json(data, where=str(path))
+
+
+def write_index(
+    folder: str | os.PathLike,
+    result_set: ResultSet,
+    *,
+    timings: Mapping[int, float] | None = None,
+    sources: Mapping[int, str] | None = None,
+) -> Path:
+    """Write ``index.json`` for records already written with :func:`write_record`.
+
+    The index stores each file's SHA-256, so it must be written after the files.
+    """
+    folder = Path(folder)
+    runs = []
+    for record in result_set.records:
+        name = record_file_name(record.spec)
+        digest = hashlib.sha256((folder / name).read_bytes()).hexdigest()
+        entry: dict[str, Any] = {
+            "index": record.spec.index,
+            "seed": record.spec.seed.label,
+            "file": name,
+            "sha256": digest,
+            "status": record.status,
+        }
+        if timings is not None and record.spec.index in timings:
+            entry["wall_seconds"] = round(float(timings[record.spec.index]), 6)
+        if sources is not None and record.spec.index in sources:
+            entry["source"] = sources[record.spec.index]
+        runs.append(entry)
+    index = {
+        "schema": RESULTS_SCHEMA,
+        "manifest": result_set.manifest,
+        "config_hash": result_set.config_hash,
+        "runs": runs,
+    }
+    path = folder / INDEX_FILE
+    atomic_write_text(path, _dumps(index))
+    return path
+
+
+def write_results(
+    folder: str | os.PathLike,
+    result_set: ResultSet,
+    *,
+    timings: Mapping[int, float] | None = None,
+    sources: Mapping[int, str] | None = None,
+) -> Path:
+    """Write every run's file and then the index, each atomically; return the index path.
+
+    Parameters
+    ----------
+    folder
+        The results folder; created if missing.
+    result_set
+        The records, in the manifest's seed order.
+    timings
+        Wall time in seconds per run index; stored in the index only.
+    sources
+        Where each run's record came from (``"trained"``, ``"cache"``, ``"resumed"``); index only.
+    """
+    for record in result_set.records:
+        write_record(folder, record)
+    return write_index(folder, result_set, timings=timings, sources=sources)
+
+
+def read_index(folder: str | os.PathLike) -> dict:
+    """The parsed ``index.json`` of a results folder (checked for its schema)."""
+    path = Path(folder) / INDEX_FILE
+    data, _ = _load_json(path)
+    if not isinstance(data, dict) or data.get("schema") != RESULTS_SCHEMA:
+        found = data.get("schema") if isinstance(data, dict) else type(data).__name__
+        raise ResultsError(
+            f"{path}: unknown results schema {found!r} (expected {RESULTS_SCHEMA!r}); "
+            "run the manifest again with this version of rl-harness"
+        )
+    return data
+
+
+def read_results(folder: str | os.PathLike) -> ResultSet:
+    """Read a results folder written by :func:`write_results` or ``rlharness run``.
+
+    Raises
+    ------
+    ResultsError
+        The index or a run file is missing, damaged, of an unknown schema, fails its
+        checksum, or belongs to another manifest or configuration.
+    """
+    folder = Path(folder)
+    index = read_index(folder)
+    where = folder / INDEX_FILE
+    try:
+        manifest, config_hash, runs = index["manifest"], index["config_hash"], index["runs"]
+        entries = [(str(e["file"]), str(e["sha256"])) for e in runs]
+    except (KeyError, TypeError) as exc:
+        raise ResultsError(f"{where}: malformed index ({type(exc).__name__}: {exc}); run the manifest again") from exc
+    records = []
+    for position, (name, digest) in enumerate(entries):
+        if Path(name).name != name or name in ("", ".", ".."):
+            raise ResultsError(f"{where}: run file name {name!r} leaves the results folder; the index is damaged")
+        path = folder / name
+        data, text = _load_json(path)
+        if hashlib.sha256(text.encode("utf-8")).hexdigest() != digest:
+            raise ResultsError(
+                f"{path}: content does not match its SHA-256 in {where}; the file was changed after the run. "
+                "Delete the folder and run the manifest again"
+            )
+        record = record_from_json(data, where=str(path))
+        if record.spec.index != position or record.spec.config_hash != config_hash or record.spec.manifest != manifest:
+            raise ResultsError(
+                f"{path}: belongs to {record.spec.manifest!r} seed #{record.spec.index} ({record.spec.config_hash}), "
+                f"but {where} lists it as {manifest!r} seed #{position} ({config_hash}); run the manifest again"
+            )
+        records.append(record)
+    return ResultSet(manifest=manifest, config_hash=config_hash, records=tuple(records))
