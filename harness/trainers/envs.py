@@ -1,4 +1,12 @@
-"""Environment construction and greedy evaluation shared by the trainers."""
+"""Environment construction and evaluation shared by the trainers.
+
+:func:`make_env` builds a task's environment the gymnasium way;
+:class:`LeanEnv` steps the same environment without per-step wrapper overhead
+(the episode step limit is counted here, exactly as gymnasium's ``TimeLimit``
+counts it); :func:`evaluate_policy` plays episodes one after the other and
+:func:`evaluate_stacked` plays the episodes of K policies side by side so that
+each step needs one batched action computation.
+"""
 
 from __future__ import annotations
 
@@ -6,10 +14,11 @@ from collections.abc import Callable, Sequence
 
 import gymnasium as gym
 import numpy as np
+from gymnasium.wrappers import OrderEnforcing, PassiveEnvChecker, TimeLimit
 
 from harness.spec import TaskSpec
 
-__all__ = ["evaluate_policy", "make_env"]
+__all__ = ["LeanEnv", "evaluate_policy", "evaluate_stacked", "make_env"]
 
 
 def make_env(task: TaskSpec) -> gym.Env:
@@ -56,3 +65,118 @@ def evaluate_policy(
                 break
         returns.append(total)
     return tuple(returns)
+
+
+#: Wrappers whose per-step work :class:`LeanEnv` may skip: two checks that do not
+#: change any value, and the time limit, which LeanEnv counts itself.
+_SKIPPABLE = (OrderEnforcing, PassiveEnvChecker, TimeLimit)
+
+
+class LeanEnv:
+    """A task's environment stepped without wrapper overhead.
+
+    When every wrapper :func:`make_env` put around the environment is an
+    order/API check or the ``TimeLimit``, steps go straight to the unwrapped
+    environment and the step limit is counted here with ``TimeLimit``'s rule
+    (``truncated`` once the episode's step count reaches the limit), so
+    episodes are exactly those of the wrapped environment. With any other
+    wrapper the wrapped environment is stepped as is. Observations come back
+    flattened to one dimension.
+    """
+
+    def __init__(self, task: TaskSpec):
+        self.wrapped = make_env(task)
+        self.action_space = self.wrapped.action_space
+        self.observation_space = self.wrapped.observation_space
+        limit, env = None, self.wrapped
+        while isinstance(env, gym.Wrapper) and isinstance(env, _SKIPPABLE):
+            if isinstance(env, TimeLimit):
+                limit = env._max_episode_steps
+            env = env.env
+        if isinstance(env, gym.Wrapper):  # an unknown wrapper: keep the whole stack
+            limit, env = None, self.wrapped
+        self._env, self._limit, self._elapsed = env, limit, 0
+        self._flatten = len(self.observation_space.shape or ()) != 1
+
+    def reset(self, seed: int | None = None) -> np.ndarray:
+        """Start an episode (seeding the environment's generator when ``seed`` is given)."""
+        self._elapsed = 0
+        obs, _ = self._env.reset(seed=seed)
+        return np.ravel(obs) if self._flatten else obs
+
+    def step(self, action: int) -> tuple[np.ndarray, float, bool, bool]:
+        """``(observation, reward, terminated, truncated)`` of one step; the info dict is dropped."""
+        obs, reward, terminated, truncated, _ = self._env.step(action)
+        if self._limit is not None:
+            self._elapsed += 1
+            if self._elapsed >= self._limit:
+                truncated = True
+        return (np.ravel(obs) if self._flatten else obs), reward, terminated, truncated
+
+
+def evaluate_stacked(
+    act: Callable[[np.ndarray], np.ndarray],
+    envs: Sequence[Sequence[LeanEnv]],
+    seeds: Sequence[int],
+    *,
+    obs: np.ndarray,
+    epsilon: float = 0.0,
+) -> tuple[tuple[float, ...], ...]:
+    """Play episode ``e`` (seeded ``seeds[e]``) of each of K policies side by side.
+
+    Parameters
+    ----------
+    act
+        Maps the observations ``obs`` ``(K, E, obs_dim)`` to action indices
+        ``(K, E)``. Rows of finished episodes keep their last observation and
+        their actions are ignored, so policy ``k`` always sees an ``(E, obs_dim)``
+        block whatever the other policies do.
+    envs
+        ``envs[k][e]``: one evaluation environment per policy and episode.
+    seeds
+        The E episode seeds, the same for every policy.
+    obs
+        The ``(K, E, obs_dim)`` buffer ``act`` reads (e.g. a view of a network's input buffer).
+    epsilon
+        Probability of replacing the policy's action with a uniformly random
+        one. The draws of episode ``e`` come from a Generator spawned from
+        ``seeds[e]`` (independent of the environment's own generator), so
+        every policy and every checkpoint meets the same random numbers.
+
+    Returns
+    -------
+    returns
+        ``returns[k][e]``: the undiscounted return of policy ``k`` in episode ``e``.
+    """
+    if not 0.0 <= epsilon <= 1.0:
+        raise ValueError(f"`epsilon` must be in [0, 1], got {epsilon!r}")
+    n_k, n_e = len(envs), len(seeds)
+    if obs.shape[:2] != (n_k, n_e):
+        raise ValueError(f"`obs` must have shape ({n_k}, {n_e}, obs_dim), got {obs.shape}")
+    totals = [[0.0] * n_e for _ in range(n_k)]
+    rngs = {}
+    if epsilon > 0:
+        rngs = {(k, e): np.random.default_rng(np.random.SeedSequence(int(s)).spawn(1)[0])
+                for k in range(n_k) for e, s in enumerate(seeds)}
+    for k in range(n_k):
+        for e, s in enumerate(seeds):
+            obs[k, e] = envs[k][e].reset(seed=int(s))
+    active = [(k, e) for k in range(n_k) for e in range(n_e)]
+    while active:
+        actions = act(obs)
+        still = []
+        for k, e in active:
+            env = envs[k][e]
+            a = int(actions[k, e])
+            if epsilon > 0:
+                rng = rngs[k, e]
+                if rng.random() < epsilon:
+                    a = int(rng.integers(env.action_space.n))
+            o, reward, terminated, truncated = env.step(a + int(env.action_space.start))
+            totals[k][e] += float(reward)
+            if terminated or truncated:
+                continue
+            obs[k, e] = o
+            still.append((k, e))
+        active = still
+    return tuple(tuple(t) for t in totals)
