@@ -158,12 +158,10 @@ def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunR
     return None
 
 
-def _tasks(specs: Sequence[RunSpec], time_limit: float | None) -> list[Task]:
+def _tasks(specs: Sequence[RunSpec], time_limit: float | None, search_path: str | None) -> list[Task]:
     """Lockstep groups of at most K seeds, in seed order (K from the trainer, 1 without lockstep)."""
-    if not specs:
-        return []
-    k = max(1, int(lockstep_size(specs[0])))
-    return [Task(tuple(specs[i : i + k]), time_limit) for i in range(0, len(specs), k)]
+    k = lockstep_size(specs[0], search_path=search_path)
+    return [Task(tuple(specs[i : i + k]), time_limit, search_path) for i in range(0, len(specs), k)]
 
 
 class _Run:
@@ -230,7 +228,7 @@ class _Run:
             self.claims[spec.index] = lock
             if not self.from_cache(spec):
                 todo.append(spec)
-        return Task(tuple(todo), task.time_limit) if todo else None
+        return dataclasses.replace(task, specs=tuple(todo)) if todo else None
 
     def accept(self, result: WorkerResult) -> None:
         spec = self.specs[result.index]
@@ -290,6 +288,7 @@ def run_specs(
     use_cache: bool = True,
     time_limit: float | None = None,
     on_event: OnEvent | None = None,
+    trainer_path: str | os.PathLike | None = None,
 ) -> RunOutcome:
     """Train (or resume, or take from the cache) every run of one manifest's plan.
 
@@ -315,6 +314,8 @@ def run_specs(
         Seconds a run may train before it is stopped and recorded failed; ``None``: no limit.
     on_event
         Called with each :class:`RunEvent` (for progress displays), in the calling thread.
+    trainer_path
+        A folder where workers also look for a user trainer's module (the manifest's folder).
 
     Returns
     -------
@@ -347,11 +348,13 @@ def run_specs(
         else:
             run.from_cache(spec)
     todo = [s for s in specs if s.index not in run.records]
+    search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
+    tasks = _tasks(todo, time_limit, search_path) if todo else []
     with _sigterm_as_interrupt():
-        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if todo else None
+        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if tasks else None
         try:
             if pool is not None:
-                _drive(run, pool, _tasks(todo, time_limit))
+                _drive(run, pool, tasks)
         finally:
             if pool is not None:
                 pool.close()
@@ -365,8 +368,11 @@ def run_specs(
 def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **options) -> RunOutcome:
     """Train every seed of ``manifest`` (a ``harness.manifest.Manifest``); see :func:`run_specs`.
 
-    ``results_dir`` defaults to ``results/<manifest name>/``.
+    ``results_dir`` defaults to ``results/<manifest name>/``; a user trainer's module is also
+    looked for in the manifest's folder, as when the manifest was loaded.
     """
     if results_dir is None:
         results_dir = Path(DEFAULT_RESULTS_DIR) / manifest.name
+    if manifest.path is not None:
+        options.setdefault("trainer_path", Path(manifest.path).resolve().parent)
     return run_specs(manifest.runs(), results_dir=results_dir, **options)

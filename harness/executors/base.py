@@ -60,10 +60,14 @@ class RunEvent:
 
 @dataclasses.dataclass(frozen=True, slots=True)
 class Task:
-    """Runs trained together by one worker (several only when the trainer offers lockstep)."""
+    """Runs trained together by one worker (several only when the trainer offers lockstep).
+
+    ``search_path`` is a folder where the worker may also look for a user trainer's module.
+    """
 
     specs: tuple[RunSpec, ...]
     time_limit: float | None = None
+    search_path: str | None = None
 
     def __post_init__(self) -> None:
         if not self.specs:
@@ -79,7 +83,8 @@ class Task:
         return None if self.time_limit is None else self.time_limit * len(self.specs)
 
     def payload(self) -> str:
-        return json.dumps({"runs": [s.to_json() for s in self.specs]}, allow_nan=False)
+        runs = [s.to_json() for s in self.specs]
+        return json.dumps({"runs": runs, "search_path": self.search_path}, allow_nan=False)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

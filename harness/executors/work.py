@@ -11,6 +11,7 @@ results do not depend on a thread count.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import time
@@ -20,48 +21,38 @@ from collections.abc import Callable, Iterable, Iterator
 from threadpoolctl import threadpool_limits
 
 from harness.curves import Checkpoint, LearningCurve
+from harness.pins import installed_pins
 from harness.spec import RunSpec
+from harness.trainers.registry import resolve_trainer
 
-__all__ = ["lockstep_size", "run_task"]
+__all__ = ["installed_versions", "lockstep_size", "run_task"]
 
 Emit = Callable[[int, str, int, float], None]
 
 
-# TEMPORARY bridge until harness.trainers.registry and harness.pins land (helper H3).
-import dataclasses, importlib, platform  # noqa: E402
-
-
-@dataclasses.dataclass(frozen=True)
-class _Entry:
-    train: Callable
-    train_lockstep: Callable | None
-    lockstep_size: Callable[[dict], int]
-
-
-def resolve_trainer(name: str) -> _Entry:
-    target = {"tabular-q": "harness.trainers.tabular:train", "dqn": "harness.trainers.dqn:train"}.get(name, name)
-    mod_name, _, attr = target.partition(":")
-    mod = importlib.import_module(mod_name)
-    lock = getattr(mod, "train_lockstep", None) if attr == "train" else None
-    size = getattr(mod, "lockstep_size", None) if lock is not None else None
-    return _Entry(getattr(mod, attr), lock, (lambda cfg: size(cfg)) if size else (lambda cfg: 1))
-
-
+@functools.cache
 def installed_versions() -> dict[str, str]:
-    import numpy, gymnasium, harness
-    return {"python": platform.python_version(), "numpy": numpy.__version__, "gymnasium": gymnasium.__version__, "rl-harness": harness.__version__}
+    """The installed versions that shape a run's numbers (``harness.pins``), read once per process."""
+    return installed_pins(config_hash="").versions
 
 
-def lockstep_size(spec: RunSpec) -> int:
-    """How many seeds the run's trainer trains together in one process (1 without lockstep)."""
-    return resolve_trainer(spec.trainer).lockstep_size(spec.config)
+def lockstep_size(spec: RunSpec, *, search_path: str | None = None) -> int:
+    """How many seeds the run's trainer trains together in one process (1 without lockstep).
+
+    Raises ``ManifestError`` when the trainer cannot be resolved.
+    """
+    trainer = resolve_trainer(spec.trainer, search_path=search_path)
+    if trainer.train_lockstep is None or trainer.lockstep_size is None:
+        return 1
+    settings = trainer.settings_type(**spec.config) if trainer.settings_type is not None else spec.config
+    return max(1, int(trainer.lockstep_size(settings)))
 
 
-def _stream(specs: list[RunSpec]) -> Iterable[tuple[Checkpoint, ...]]:
-    entry = resolve_trainer(specs[0].trainer)
+def _stream(specs: list[RunSpec], search_path: str | None) -> Iterable[tuple[Checkpoint, ...]]:
+    trainer = resolve_trainer(specs[0].trainer, search_path=search_path)
     if len(specs) == 1:
-        return ((cp,) for cp in entry.train(specs[0]))
-    return entry.train_lockstep(specs)
+        return ((cp,) for cp in trainer.train(specs[0]))
+    return trainer.train_lockstep(specs)
 
 
 def _check(cp: object, spec: RunSpec, expected: int | None) -> str | None:
@@ -77,13 +68,13 @@ def _check(cp: object, spec: RunSpec, expected: int | None) -> str | None:
     return None
 
 
-def _train(specs: list[RunSpec], emit: Emit | None) -> tuple[list[list[Checkpoint]], list[str | None]]:
+def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None) -> tuple[list[list[Checkpoint]], list[str | None]]:
     plan = specs[0].checkpoint_steps()
     curves: list[list[Checkpoint]] = [[] for _ in specs]
     failures: list[str | None] = [None] * len(specs)
-    it: Iterator = iter(_stream(specs))
-    n = 0
+    it: Iterator | None = None
     try:
+        it = iter(_stream(specs, search_path))
         for n, group in enumerate(it, start=1):
             if len(group) != len(specs):
                 raise RuntimeError(f"lockstep trainer yielded {len(group)} checkpoints for {len(specs)} runs")
@@ -103,7 +94,7 @@ def _train(specs: list[RunSpec], emit: Emit | None) -> tuple[list[list[Checkpoin
     for k, spec in enumerate(specs):
         if failures[k] is None and len(curves[k]) != len(plan):
             failures[k] = f"trainer stopped after {len(curves[k])} of {len(plan)} checkpoints (plan {list(plan)})"
-    close = getattr(it, "close", None)
+    close = getattr(it, "close", None) if it is not None else None
     if close is not None:
         close()
     return curves, failures
@@ -115,7 +106,8 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
     Parameters
     ----------
     payload
-        ``{"runs": [RunSpec.to_json(), ...]}`` as JSON text.
+        ``{"runs": [RunSpec.to_json(), ...], "search_path": folder or null}`` as JSON text; the
+        search path is where a user trainer's module may be found (the manifest's folder).
     emit
         Called with ``(index, seed label, step, mean return)`` after each accepted checkpoint.
 
@@ -125,10 +117,11 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
         ``{"runs": [{"index", "curve", "failure"}, ...], "versions": {...}, "wall_seconds": float}``
         where ``curve`` is ``LearningCurve.to_json()`` or ``None``.
     """
-    specs = [RunSpec.from_json(d) for d in json.loads(payload)["runs"]]
+    data = json.loads(payload)
+    specs = [RunSpec.from_json(d) for d in data["runs"]]
     start = time.perf_counter()
     with threadpool_limits(limits=1):
-        curves, failures = _train(specs, emit)
+        curves, failures = _train(specs, data.get("search_path"), emit)
         versions = dict(installed_versions())
     runs = [
         {
