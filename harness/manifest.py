@@ -1,0 +1,322 @@
+"""Manifests: TOML in, a validated, fully resolved :class:`Manifest` out.
+
+The format is documented in DEVELOPERS.md ("The manifest format"). Each table
+is resolved through :mod:`harness.config` against a schema (the private
+``_...Table`` dataclasses here, the trainer's settings dataclass, and
+:class:`harness.policy.GatePolicy` / :class:`harness.policy.PublishedReference`),
+so every problem is reported as a :class:`~harness.errors.ManifestError` naming
+the file, the dotted key and the fix. Nothing is trained or written while
+loading.
+
+The config hash is ``harness.spec.sha256_of(manifest.resolved_config())``: the
+task (step limit filled in from gymnasium's registry), the trainer, its settings
+with every default filled in, the budget, the evaluation plan and the planned
+seeds. ``name``, ``description``, ``[check]``, ``[[reference]]`` and ``[pins]``
+do not enter it: they do not change what is trained.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import importlib
+import os
+import re
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+import gymnasium as gym
+
+from harness import config
+from harness.errors import ConfigError, ManifestError
+from harness.pins import Pins
+from harness.policy import GatePolicy, PublishedReference
+from harness.seeding import RunSeed, plan_seeds
+from harness.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.trainers.registry import resolve_trainer
+
+__all__ = ["Manifest", "load_manifest", "parse_manifest"]
+
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
+
+
+def _positive_int(value: int, key: str) -> None:
+    if value < 1:
+        raise ConfigError(f"must be a positive integer, got {value!r}", key=key)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _TaskTable:
+    id: str
+    options: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+    episode_step_limit: int | None = None
+
+    def __post_init__(self) -> None:
+        if self.episode_step_limit is not None:
+            _positive_int(self.episode_step_limit, "episode_step_limit")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _TrainerTable:
+    use: str
+    settings: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _BudgetTable:
+    env_steps: int
+
+    def __post_init__(self) -> None:
+        _positive_int(self.env_steps, "env_steps")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _EvaluationTable:
+    every: int
+    episodes: int = 10
+    episode_seed: int = 0
+    epsilon: float = 0.0
+
+    def __post_init__(self) -> None:
+        _positive_int(self.every, "every")
+        _positive_int(self.episodes, "episodes")
+        if self.episode_seed < 0:
+            raise ConfigError(f"must be a non-negative integer, got {self.episode_seed!r}", key="episode_seed")
+        if not 0.0 <= self.epsilon <= 1.0:
+            raise ConfigError(f"must be in [0, 1] (0 = greedy), got {self.epsilon!r}", key="epsilon")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _SeedsTable:
+    count: int | None = None
+    root: int | None = None
+    values: tuple[int, ...] | None = None
+
+    def planned(self) -> tuple[RunSeed, ...]:
+        if (self.values is None) == (self.count is None):
+            raise ConfigError(
+                "give either `values = [1, 2, 3]` or `count = N` with `root = ENTROPY`, not both or neither",
+                key="count" if self.count is not None else None,
+            )
+        if self.values is not None and self.root is not None:
+            raise ConfigError("`root` goes with `count`; remove it or replace `values` by `count`", key="root")
+        try:
+            return plan_seeds(seeds=self.values, count=self.count, root=self.root)
+        except ValueError as exc:
+            key = "values" if self.values is not None else ("root" if "root" in str(exc) else "count")
+            raise ConfigError(f"{exc}; fix the seed list", key=key) from None
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class _ManifestFile:
+    name: str
+    task: _TaskTable
+    trainer: _TrainerTable
+    budget: _BudgetTable
+    evaluation: _EvaluationTable
+    seeds: _SeedsTable
+    description: str = ""
+    check: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+    reference: tuple[Mapping[str, Any], ...] = ()
+    pins: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        if not _NAME_RE.match(self.name):
+            raise ConfigError(
+                f"must be a file-safe name (letters, digits, '.', '_', '-'; up to 100), got {self.name!r}",
+                key="name",
+            )
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Manifest:
+    """A validated manifest with every default filled in.
+
+    Attributes
+    ----------
+    path
+        The file it was read from (``None`` when parsed from text without one).
+    name, description
+        File-safe name (results and baselines are stored under it) and one line of text.
+    task
+        The task; ``max_episode_steps`` is filled from gymnasium's registry when not given.
+    trainer
+        Built-in trainer name or ``"package.module:function"``.
+    settings
+        The trainer's resolved settings (arrays as tuples; JSON writes them as lists).
+    budget
+        Environment steps of training per seed.
+    evaluation
+        The evaluation plan.
+    seeds
+        The planned seeds, in manifest order.
+    check, references
+        The verification policy (``[check]``) and published references (``[[reference]]``).
+    pins
+        The ``[pins]`` table, or ``None`` when the manifest has not been pinned.
+    config_hash
+        ``"sha256:..."`` of :meth:`resolved_config`.
+    """
+
+    path: Path | None
+    name: str
+    description: str
+    task: TaskSpec
+    trainer: str
+    settings: Mapping[str, Any]
+    budget: int
+    evaluation: EvaluationPlan
+    seeds: tuple[RunSeed, ...]
+    check: GatePolicy
+    references: tuple[PublishedReference, ...]
+    pins: Pins | None
+    config_hash: str
+
+    def resolved_config(self) -> dict[str, Any]:
+        """The resolved training configuration: exactly what the config hash is taken of."""
+        return _resolved_config(self.task, self.trainer, self.settings, self.budget, self.evaluation, self.seeds)
+
+    def runs(self) -> tuple[RunSpec, ...]:
+        """One :class:`~harness.spec.RunSpec` per seed, in manifest order."""
+        return tuple(
+            RunSpec(
+                manifest=self.name,
+                task=self.task,
+                trainer=self.trainer,
+                config=dict(self.settings),
+                budget=self.budget,
+                evaluation=self.evaluation,
+                seed=seed,
+                index=index,
+                config_hash=self.config_hash,
+            )
+            for index, seed in enumerate(self.seeds)
+        )
+
+
+def _resolved_config(task, trainer, settings, budget, evaluation, seeds) -> dict[str, Any]:
+    return {
+        "task": task.to_json(),
+        "trainer": trainer,
+        "settings": dict(settings),
+        "budget": budget,
+        "evaluation": evaluation.to_json(),
+        "seeds": [seed.to_json() for seed in seeds],
+    }
+
+
+def _registered_step_limit(task: _TaskTable, *, path: str | None) -> int | None:
+    """Check the id against gymnasium's registry and return its registered episode step limit."""
+    env_id = task.id
+    if ":" in env_id:
+        module, _, env_id = env_id.partition(":")
+        try:
+            importlib.import_module(module)
+        except ImportError as exc:
+            raise ManifestError(
+                f"cannot import {module!r}, which should register the task ({exc}); install it",
+                path=path, key="task.id",
+            ) from None
+    try:
+        spec = gym.spec(env_id)
+    except gym.error.Error as exc:
+        close = difflib.get_close_matches(env_id, list(gym.registry), n=3, cutoff=0.6)
+        hint = f" Did you mean {' or '.join(repr(c) for c in close)}?" if close else ""
+        raise ManifestError(
+            f"{env_id!r} is not a task in gymnasium's registry ({exc}).{hint} "
+            "Use a registered id (`python -c \"import gymnasium; gymnasium.pprint_registry()\"` lists them).",
+            path=path, key="task.id",
+        ) from None
+    return spec.max_episode_steps
+
+
+def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manifest:
+    """Parse and validate a manifest given as TOML text.
+
+    Parameters
+    ----------
+    text
+        The TOML text.
+    path
+        The file the text came from: named in errors, and its folder is where a user
+        trainer's module (``use = "module:function"``) is looked for if not installed.
+
+    Raises
+    ------
+    ManifestError
+        For TOML syntax errors (with the line), unknown keys (with a "did you mean"), wrong
+        types, out-of-range values, an unknown gymnasium id or trainer, an evaluation interval
+        larger than the budget, duplicate seeds.
+    """
+    where = None if path is None else str(path)
+    search_path = None if path is None else Path(path).resolve().parent
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ManifestError(f"is not valid TOML: {exc}; fix the syntax there", path=where) from None
+    table = config.resolve(_ManifestFile, data, path=where)
+    task = table.task
+    step_limit = task.episode_step_limit
+    registered = _registered_step_limit(task, path=where)
+    if step_limit is None:
+        step_limit = registered
+    if step_limit is None:
+        raise ManifestError(
+            f"{task.id!r} has no episode step limit registered with gymnasium; set "
+            "`episode_step_limit = N` in [task] so that every episode (and evaluation) ends",
+            path=where, key="task.episode_step_limit",
+        )
+    task_spec = TaskSpec(task.id, dict(task.options), step_limit)
+    trainer = resolve_trainer(table.trainer.use, search_path=search_path, path=where, key="trainer.use")
+    settings = trainer.resolve_settings(table.trainer.settings, path=where, key="trainer.settings")
+    budget = table.budget.env_steps
+    if table.evaluation.every > budget:
+        raise ManifestError(
+            f"evaluation every {table.evaluation.every} steps is more than the budget of {budget} steps; "
+            "lower `every` or raise [budget] env_steps",
+            path=where, key="evaluation.every",
+        )
+    evaluation = EvaluationPlan(
+        interval=table.evaluation.every,
+        episodes=table.evaluation.episodes,
+        seed=table.evaluation.episode_seed,
+        epsilon=table.evaluation.epsilon,
+    )
+    try:
+        seeds = table.seeds.planned()
+    except ConfigError as exc:
+        raise ConfigError(config.bare_message(exc), path=where, key=f"seeds.{exc.key}" if exc.key else "seeds") from None
+    check = config.resolve(GatePolicy, table.check, path=where, key="check")
+    references = tuple(
+        config.resolve(PublishedReference, ref, path=where, key=f"reference[{i}]") for i, ref in enumerate(table.reference)
+    )
+    pins = config.resolve(Pins, table.pins, path=where, key="pins") if table.pins else None
+    resolved = _resolved_config(task_spec, table.trainer.use, settings, budget, evaluation, seeds)
+    return Manifest(
+        path=None if path is None else Path(path),
+        name=table.name,
+        description=table.description,
+        task=task_spec,
+        trainer=table.trainer.use,
+        settings=settings,
+        budget=budget,
+        evaluation=evaluation,
+        seeds=seeds,
+        check=check,
+        references=references,
+        pins=pins,
+        config_hash=sha256_of(resolved),
+    )
+
+
+def load_manifest(path: str | os.PathLike) -> Manifest:
+    """Read and validate the manifest at ``path`` (see :func:`parse_manifest`)."""
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ManifestError("no such file; check the path", path=str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ManifestError(f"cannot be read as UTF-8 text ({exc})", path=str(path)) from None
+    return parse_manifest(text, path=path)
