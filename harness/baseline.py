@@ -36,6 +36,7 @@ __all__ = [
     "Baseline",
     "SeedCurve",
     "baseline_from_results",
+    "check_overwrite",
     "default_baseline_path",
     "read_baseline",
     "write_baseline",
@@ -190,6 +191,19 @@ def _render(value: Any, indent: int = 0) -> str:
     return json.dumps(value, allow_nan=False)
 
 
+def check_overwrite(path: str | os.PathLike, *, overwrite: bool) -> None:
+    """Raise :class:`BaselineError` if a baseline exists at ``path`` and ``overwrite`` is false.
+
+    Call it before running anything, so that a refused record wastes no training.
+    """
+    path = Path(path)
+    if path.exists() and not overwrite:
+        raise BaselineError(
+            f"{path}: a baseline already exists (recorded for {_describe_existing(path)}); it is kept. "
+            "Pass --overwrite (overwrite=True) to replace it, or choose another path"
+        )
+
+
 def write_baseline(baseline: Baseline, path: str | os.PathLike, *, overwrite: bool = False) -> Path:
     """Write ``baseline`` to ``path`` atomically; refuse to replace a file unless ``overwrite``.
 
@@ -199,11 +213,7 @@ def write_baseline(baseline: Baseline, path: str | os.PathLike, *, overwrite: bo
         If ``path`` exists and ``overwrite`` is false; nothing is written then.
     """
     path = Path(path)
-    if path.exists() and not overwrite:
-        raise BaselineError(
-            f"{path}: a baseline already exists (recorded for {_describe_existing(path)}); it is kept. "
-            "Pass --overwrite (overwrite=True) to replace it, or choose another path"
-        )
+    check_overwrite(path, overwrite=overwrite)
     content = baseline.content()
     content["checksum"] = sha256_of(baseline.content())
     text = _render(content) + "\n"

@@ -1,0 +1,66 @@
+"""``rlharness compare A B``: two stored result sets, the same statistics as verify, no rerun.
+
+A is the reference (for example the main branch or the old library version),
+B the candidate. The gate policy is the defaults, the ``[check]`` table of
+``--manifest`` if given, and the command line's overrides. Exit codes as for
+``verify``: 0 gate passed, 1 gate failed, 2 bad input, 3 runs failed.
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from harness.cli import ExitCode
+from harness.cli.verify import add_policy_arguments, add_report_arguments, finish, policy_from_args
+from harness.errors import RunFailedError
+
+__all__ = ["register"]
+
+
+def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.compare import CurveSet, random_policy_return, task_threshold
+    from harness.policy import GatePolicy
+    from harness.store import read_results
+    from harness.verify import verify_sets
+
+    base_policy = GatePolicy()
+    if args.manifest:
+        from harness.manifest import load_manifest
+
+        base_policy = load_manifest(args.manifest).check
+    policy = policy_from_args(base_policy, args)
+    sides = []
+    try:
+        for folder in (args.a, args.b):
+            results = read_results(folder)
+            sides.append(CurveSet.from_results(results, label=f"results {Path(folder)}", expected=len(results.records)))
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    spec = read_results(args.b).records[0].spec
+    threshold = task_threshold(spec.task) if policy.threshold is None else None
+    floor = None
+    if policy.margin is None and policy.floor is None:
+        floor = random_policy_return(spec.task, spec.evaluation)
+    verdict = verify_sets(sides[0], sides[1], policy, floor=floor, threshold=threshold)
+    return finish(verdict, args, console)
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "compare", help="compare two stored result sets (no rerun)",
+        description=(
+            "Compare two stored result folders with the statistics of verify: A is the reference, B the candidate. "
+            "Exit 0 gate passed, 1 gate failed, 2 bad input, 3 runs failed."
+        ),
+    )
+    parser.add_argument("a", metavar="A", help="results folder of the reference (e.g. results/<name>/ on main)")
+    parser.add_argument("b", metavar="B", help="results folder of the candidate")
+    parser.add_argument("--manifest", metavar="FILE", help="take the gate policy from this manifest's [check]")
+    add_policy_arguments(parser)
+    add_report_arguments(parser)
+    parser.set_defaults(handler=_handle)

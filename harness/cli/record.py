@@ -1,0 +1,54 @@
+"""``rlharness record MANIFEST``: run a manifest (or reuse its results) and store its baseline.
+
+Refuses to replace an existing baseline unless ``--overwrite`` is given; the
+check happens before anything is run. Exit codes: 0 recorded, 2 bad input
+(nothing written), 3 runs failed (no baseline written).
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from harness.cli import ExitCode
+from harness.cli.verify import add_run_arguments, obtain_results
+from harness.errors import RunFailedError
+
+__all__ = ["register"]
+
+
+def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
+    from harness.manifest import load_manifest
+
+    manifest = load_manifest(args.manifest)
+    path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)
+    check_overwrite(path, overwrite=args.overwrite)
+    try:
+        results = obtain_results(args, manifest, console)
+    except RunFailedError as exc:
+        console.print(f"runs failed, no baseline written: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    baseline = baseline_from_results(manifest, results)
+    written = write_baseline(baseline, path, overwrite=args.overwrite)
+    console.print(
+        f"recorded baseline {written}: {len(baseline.runs)} seeds, {manifest.config_hash}, checksum "
+        f"{baseline.checksum}. Commit it; `rlharness verify {args.manifest}` checks reruns against it.",
+        highlight=False, soft_wrap=True,
+    )
+    return ExitCode.OK
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "record", help="run a manifest and store its baseline",
+        description="Run MANIFEST (reusing results that match) and store its baseline under baselines/.",
+    )
+    parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
+    parser.add_argument("--output", metavar="FILE", help="baseline file (default: <baselines>/<name>.json)")
+    parser.add_argument("--overwrite", action="store_true", help="replace an existing baseline")
+    add_run_arguments(parser)
+    parser.set_defaults(handler=_handle)

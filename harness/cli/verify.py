@@ -1,0 +1,186 @@
+"""``rlharness verify MANIFEST``: rerun a manifest and verify it against its baseline.
+
+Exit codes (:class:`harness.cli.ExitCode`): 0 gate passed, 1 gate failed,
+2 bad input (manifest, baseline, results or arguments; nothing written),
+3 runs failed (never verified on fewer seeds than the manifest asks).
+"""
+
+from __future__ import annotations
+
+import argparse
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from harness.cli import ExitCode
+from harness.errors import RunFailedError
+from harness.policy import KNOWN_METRICS, GatePolicy
+from harness.verify import Verdict
+
+__all__ = ["add_policy_arguments", "add_report_arguments", "add_run_arguments", "finish", "obtain_results",
+           "policy_from_args", "register"]
+
+
+def add_run_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options that say where results come from: run (cached and resumed) or read stored ones."""
+    group = parser.add_argument_group("running")
+    group.add_argument("--results", metavar="DIR", help="results folder (default: results/<manifest name>/)")
+    group.add_argument("--no-run", action="store_true",
+                       help="use the results already stored in the results folder; train nothing")
+    group.add_argument("--fresh", action="store_true",
+                       help="train every seed again: no run cache, no resumed files (a new results folder)")
+    group.add_argument("--workers", type=int, metavar="N", help="worker processes (default: one per core)")
+    group.add_argument("--executor", choices=("local", "dask"), default="local", help="where runs train")
+    group.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address (with --executor dask)")
+    group.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
+    group.add_argument("--baselines", metavar="DIR", default="baselines",
+                       help="folder of baselines (default: baselines/); the file is <manifest name>.json")
+
+
+def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) -> Any:
+    """The manifest's :class:`~harness.store.ResultSet`: read (``--no-run``) or run (reusing what matches).
+
+    Raises
+    ------
+    RunFailedError
+        If any run failed (the message lists the seeds and reasons).
+    """
+    from harness.store import read_results
+
+    default = Path("results") / manifest.name
+    if args.no_run:
+        return read_results(Path(args.results) if args.results else default)
+    from harness.runner import run_manifest
+
+    folder = Path(args.results) if args.results else default
+    use_cache = not (args.no_cache or args.fresh)
+    if args.fresh:
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
+    console.print(f"running {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...", highlight=False)
+    outcome = run_manifest(manifest, results_dir=folder, workers=args.workers, executor=args.executor,
+                           scheduler=args.scheduler, use_cache=use_cache)
+    failed = outcome.results.failed()
+    if failed:
+        lines = "\n".join(f"  seed {r.spec.seed.label}: {(r.failure or '').strip().splitlines()[-1]}" for r in failed)
+        raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
+    sources = {s: sum(1 for v in outcome.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
+    console.print("runs: " + ", ".join(f"{n} {s}" for s, n in sources.items() if n), highlight=False)
+    return outcome.results
+
+
+def add_policy_arguments(parser: argparse.ArgumentParser) -> None:
+    """Command-line overrides of the manifest's ``[check]`` policy."""
+    group = parser.add_argument_group("gate policy (overrides [check] in the manifest)")
+    group.add_argument("--metrics", metavar="LIST", help=f"comma-separated metrics from {', '.join(KNOWN_METRICS)}")
+    group.add_argument("--alpha", type=float, help="family-wise error rate of the checks (default 0.05)")
+    margin = group.add_mutually_exclusive_group()
+    margin.add_argument("--margin", type=float, help="absolute equivalence margin in the metric's units")
+    margin.add_argument("--margin-share", type=float, metavar="SHARE",
+                        help="margin as a share of the span from random-policy return to reward threshold")
+    group.add_argument("--strict", action="store_true", default=None, help="also fail on inconclusive checks")
+    group.add_argument("--ignore-small", action="store_true", default=None,
+                       help="do not fail on significant differences that lie inside the margin")
+
+
+def policy_from_args(base: GatePolicy, args: argparse.Namespace) -> GatePolicy:
+    """The policy with the command line's overrides applied (a ConfigError names a bad value)."""
+    metrics = tuple(m.strip() for m in args.metrics.split(",")) if args.metrics else None
+    return base.with_overrides(metrics=metrics, alpha=args.alpha, margin=args.margin, margin_share=args.margin_share,
+                               strict=args.strict, ignore_small=args.ignore_small)
+
+
+def add_report_arguments(parser: argparse.ArgumentParser) -> None:
+    """Report files written after the verdict (Markdown, JSON, JUnit XML, plot)."""
+    group = parser.add_argument_group("reports")
+    group.add_argument("--markdown", metavar="FILE", help="write the Markdown report (CI summary, PR comment)")
+    group.add_argument("--json", metavar="FILE", help="write the JSON report (versioned schema)")
+    group.add_argument("--junit", metavar="FILE", help="write a JUnit XML report (one test case per check)")
+    group.add_argument("--plot", metavar="FILE", help="write a plot of both sets of curves (.png or .svg)")
+
+
+def _check_report_paths(args: argparse.Namespace) -> None:
+    if args.plot and Path(args.plot).suffix.lower() not in (".png", ".svg"):
+        raise ValueError(f"--plot must end in .png or .svg, got {args.plot!r}")
+
+
+def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> ExitCode:
+    """Print the terminal report, write the requested report files, and map the gate to an exit code."""
+    from harness.report.jsonreport import verdict_text
+    from harness.report.junit import render_junit
+    from harness.report.markdown import render_markdown
+    from harness.report.plot import PlotUnavailableError, plot_curves
+    from harness.report.terminal import VerdictReport
+    from harness.store import atomic_write_text
+
+    console.print(VerdictReport(verdict))
+    writers: list[tuple[str | None, Callable[[], str]]] = [
+        (args.markdown, lambda: render_markdown(verdict)),
+        (args.json, lambda: verdict_text(verdict)),
+        (args.junit, lambda: render_junit(verdict)),
+    ]
+    for target, render in writers:
+        if target:
+            path = Path(target)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            atomic_write_text(path, render())
+            console.print(f"wrote {path}", highlight=False)
+    if args.plot:
+        try:
+            console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}", highlight=False)
+        except PlotUnavailableError as exc:
+            console.print(f"plot skipped: {exc}", highlight=False)
+    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED
+
+
+def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.baseline import default_baseline_path, read_baseline
+    from harness.manifest import load_manifest
+    from harness.verify import check_grid, verify_manifest
+
+    try:
+        _check_report_paths(args)
+    except ValueError as exc:
+        console.print(f"error: {exc}", highlight=False)
+        return ExitCode.BAD_INPUT
+    manifest = load_manifest(args.manifest)
+    policy = policy_from_args(manifest.check, args)
+    path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
+    baseline = None
+    if path.exists() or args.baseline or not manifest.references:
+        baseline = read_baseline(path, manifest_name=manifest.name)
+        check_grid(manifest, baseline)
+    else:
+        console.print(f"no baseline at {path}: checking against the manifest's published references only",
+                      highlight=False)
+    try:
+        results = obtain_results(args, manifest, console)
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    try:
+        verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy)
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    return finish(verdict, args, console)
+
+
+def register(subparsers: Any) -> None:
+    parser = subparsers.add_parser(
+        "verify", help="rerun a manifest and verify it against its baseline",
+        description=(
+            "Rerun MANIFEST (reusing results that match) and verify it against its baseline: provenance, exact "
+            "check, statistical checks, where the curves part, and the gate. Exit 0 gate passed, 1 gate failed, "
+            "2 bad input, 3 runs failed."
+        ),
+    )
+    parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
+    parser.add_argument("--baseline", metavar="FILE", help="the baseline file (default: <baselines>/<name>.json)")
+    add_run_arguments(parser)
+    add_policy_arguments(parser)
+    add_report_arguments(parser)
+    parser.set_defaults(handler=_handle)

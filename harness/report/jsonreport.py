@@ -1,0 +1,78 @@
+"""The JSON report of a verdict: a versioned schema holding everything the verdict used."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+from typing import Any
+
+from harness.verify import WHAT_A_PASS_MEANS, Verdict
+
+__all__ = ["VERDICT_SCHEMA", "verdict_json", "verdict_text"]
+
+#: Schema tag of the JSON report; bumped on any incompatible change.
+VERDICT_SCHEMA = "rlharness.verdict/1"
+
+
+def _check(c: Any) -> dict:
+    data = {f.name: getattr(c, f.name) for f in dataclasses.fields(c)}
+    data["interval"] = {"low": c.interval.low, "high": c.interval.high}
+    for key in ("baseline_values", "candidate_values"):
+        data[key] = None if data[key] is None else list(data[key])
+    data["reading"] = c.reading
+    return data
+
+
+def verdict_json(verdict: Verdict) -> dict:
+    """The verdict as a JSON-compatible dict (``schema`` = :data:`VERDICT_SCHEMA`).
+
+    It carries the gate's outcome and reasons, the policy, the task's floor and threshold
+    used for the margin, provenance (hashes, changed keys, drift), the exact check, every
+    statistical check with the per-seed values it used, and where the curves part.
+    """
+    v = verdict
+    prov = v.provenance
+    exact = dataclasses.asdict(v.exact)
+    for key in ("baseline_returns", "candidate_returns"):
+        exact[key] = None if exact[key] is None else list(exact[key])
+    return {
+        "schema": VERDICT_SCHEMA,
+        "manifest": v.manifest,
+        "passed": v.passed,
+        "summary": v.summary,
+        "what_a_pass_means": WHAT_A_PASS_MEANS,
+        "gate": {"passed": v.gate.passed, "reasons": list(v.gate.reasons)},
+        "policy": v.policy.to_json(),
+        "floor": v.floor,
+        "threshold": v.threshold,
+        "provenance": {
+            "baseline": prov.baseline_label,
+            "candidate": prov.candidate_label,
+            "baseline_config_hash": prov.baseline_hash,
+            "candidate_config_hash": prov.candidate_hash,
+            "same_config": prov.same_config,
+            "changes": [dataclasses.asdict(c) for c in prov.changes],
+            "drift": [dataclasses.asdict(d) for d in prov.drift],
+            "reading": prov.reading,
+        },
+        "exact": {**exact, "reading": v.exact.reading},
+        "checks": [_check(c) for c in v.checks],
+        "divergence": None if v.divergence is None else {
+            **dataclasses.asdict(v.divergence), "reading": v.divergence.reading},
+    }
+
+
+def verdict_text(verdict: Verdict) -> str:
+    """:func:`verdict_json` as indented text (infinite interval ends written as strings)."""
+    def fix(x: Any) -> Any:
+        if isinstance(x, float) and x != x:  # NaN never appears in a verdict; refuse loudly if it does
+            raise ValueError("a verdict value is NaN")
+        if isinstance(x, float) and x in (float("inf"), float("-inf")):
+            return "inf" if x > 0 else "-inf"
+        if isinstance(x, dict):
+            return {k: fix(val) for k, val in x.items()}
+        if isinstance(x, (list, tuple)):
+            return [fix(val) for val in x]
+        return x
+
+    return json.dumps(fix(verdict_json(verdict)), indent=2, allow_nan=False) + "\n"

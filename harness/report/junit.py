@@ -1,0 +1,51 @@
+"""The JUnit XML report of a verdict: one test case per check, so CI systems show it natively.
+
+Test cases: ``provenance``, ``exact``, one per statistical check and ``divergence``.
+A check that makes the gate fail is a ``<failure>``; an inconclusive check that
+does not (non-strict policy) and a skipped exact check are ``<skipped>``; every
+case carries its one-sentence reading in ``<system-out>``.
+"""
+
+from __future__ import annotations
+
+import xml.etree.ElementTree as ET
+
+from harness.verify import WHAT_A_PASS_MEANS, Verdict
+
+__all__ = ["render_junit"]
+
+
+def render_junit(verdict: Verdict) -> str:
+    """The verdict as a JUnit XML document (one ``<testsuite>``)."""
+    v = verdict
+    suite = ET.Element("testsuite", name=f"rlharness.verify.{v.manifest}")
+    cases: list[tuple[str, str, str | None, str | None]] = []  # name, reading, failure, skipped
+    cases.append(("provenance", v.provenance.reading, None, None))
+    cases.append(("exact", v.exact.reading, None, v.exact.reason if v.exact.status == "skipped" else None))
+    failing = set(v.gate.failing)
+    for c in v.checks:
+        failure = c.reading if c.name in failing else None
+        skipped = "inconclusive: " + c.reading if failure is None and c.verdict == "inconclusive" else None
+        cases.append((f"check {c.name}", c.reading, failure, skipped))
+    if v.divergence is not None:
+        cases.append(("divergence", v.divergence.reading, None, None))
+    failures = skipped_count = 0
+    for name, reading, failure, skipped in cases:
+        case = ET.SubElement(suite, "testcase", classname=f"rlharness.{v.manifest}", name=name)
+        if failure is not None:
+            failures += 1
+            ET.SubElement(case, "failure", message=failure).text = failure
+        elif skipped is not None:
+            skipped_count += 1
+            ET.SubElement(case, "skipped", message=skipped)
+        ET.SubElement(case, "system-out").text = reading
+    suite.set("tests", str(len(cases)))
+    suite.set("failures", str(failures))
+    suite.set("errors", "0")
+    suite.set("skipped", str(skipped_count))
+    props = ET.Element("properties")
+    ET.SubElement(props, "property", name="what_a_pass_means", value=WHAT_A_PASS_MEANS)
+    ET.SubElement(props, "property", name="gate", value="passed" if v.passed else "failed")
+    suite.insert(0, props)
+    ET.indent(suite)
+    return '<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(suite, encoding="unicode") + "\n"

@@ -1,0 +1,96 @@
+"""A plot of both sets of learning curves with confidence bands (PNG or SVG; matplotlib optional).
+
+The band at each checkpoint is the two-sided t confidence interval of the mean
+evaluation return across seeds (Student 1908): seeds are the independent
+samples. matplotlib is an optional extra; without it :func:`plot_curves` raises
+:class:`PlotUnavailableError` saying how to install it.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+from scipy import stats as _st
+
+from harness.compare import CurveSet
+from harness.errors import HarnessError
+
+__all__ = ["INSTALL_HINT", "PlotUnavailableError", "curve_band", "plot_curves"]
+
+INSTALL_HINT = "pip install 'rl-harness[plot]'  (or: pip install matplotlib)"
+_FORMATS = (".png", ".svg")
+
+
+class PlotUnavailableError(HarnessError, RuntimeError):
+    """matplotlib is not installed; the message says how to install it."""
+
+
+def curve_band(matrix: np.ndarray, *, confidence_level: float = 0.95) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Mean and t confidence band across seeds for a ``(n_seeds, n_checkpoints)`` matrix.
+
+    With one seed the band collapses onto the mean.
+
+    Examples
+    --------
+    >>> mean, low, high = curve_band(np.array([[0.0, 1.0], [2.0, 3.0]]))
+    >>> mean.tolist(), bool(np.all(low <= mean) and np.all(mean <= high))
+    ([1.0, 2.0], True)
+    """
+    matrix = np.asarray(matrix, dtype=np.float64)
+    n = matrix.shape[0]
+    mean = matrix.mean(axis=0)
+    if n < 2:
+        return mean, mean.copy(), mean.copy()
+    half = _st.t.ppf(0.5 + confidence_level / 2.0, n - 1) * matrix.std(axis=0, ddof=1) / np.sqrt(n)
+    return mean, mean - half, mean + half
+
+
+def plot_curves(baseline: CurveSet | None, candidate: CurveSet, path: str | os.PathLike, *,
+                title: str | None = None) -> Path:
+    """Plot the mean curves with 95% bands and write them to ``path`` (``.png`` or ``.svg``), atomically.
+
+    Raises
+    ------
+    ValueError
+        If ``path`` does not end in ``.png`` or ``.svg``.
+    PlotUnavailableError
+        If matplotlib is not installed.
+    """
+    path = Path(path)
+    if path.suffix.lower() not in _FORMATS:
+        raise ValueError(f"`path` must end in .png or .svg, got {str(path)!r}")
+    try:
+        import matplotlib
+
+        matplotlib.use("Agg", force=False)
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise PlotUnavailableError(f"plotting needs matplotlib, which is not installed: {INSTALL_HINT}") from None
+    fig = Figure(figsize=(7.0, 4.2), layout="constrained")
+    ax = fig.add_subplot()
+    sides = [("baseline", baseline, "tab:blue"), ("candidate", candidate, "tab:orange")]
+    for name, curves, colour in sides:
+        if curves is None:
+            continue
+        steps = np.asarray(curves.steps)
+        mean, low, high = curve_band(curves.curve_matrix())
+        ax.plot(steps, mean, color=colour, label=f"{name} (n={len(curves.runs)} seeds)")
+        ax.fill_between(steps, low, high, color=colour, alpha=0.25, linewidth=0)
+    ax.set_xlabel("environment steps")
+    ax.set_ylabel("mean evaluation return")
+    ax.set_title(title or candidate.manifest)
+    ax.legend(loc="best", title="mean and 95% interval")
+    ax.grid(alpha=0.3)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
+    os.close(fd)
+    try:
+        fig.savefig(tmp, format=path.suffix[1:].lower(), metadata={"Date": None} if path.suffix.lower() == ".svg" else None)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path

@@ -1,0 +1,331 @@
+"""Verification: a candidate set of curves against its baseline (or published numbers) -> Verdict.
+
+Layers, each reported:
+
+1. **Provenance** — are the config hashes equal, and if not which resolved keys
+   differ; which installed versions differ between the runs (drift).
+2. **Exact check** — when config and versions match, every seed's curve must be
+   bitwise identical; a mismatch names the first seed and checkpoint that
+   differ (a numerics change or nondeterminism). Skipped, and said why,
+   otherwise: with other library versions the statistics decide.
+3. **Statistical checks** per metric and per published reference, Holm-corrected
+   (see :mod:`harness.compare`).
+4. **Where the curves part** — the first checkpoint range where the candidate is
+   significantly below (family-wise error controlled).
+
+The **gate** is a policy over those verdicts (:class:`harness.policy.GatePolicy`):
+it fails when a check is significantly worse (unless ``ignore_small`` and the
+difference lies inside the margin) and, in ``strict`` mode, when one is
+inconclusive.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from harness.baseline import Baseline
+from harness.compare import (
+    CurveSet,
+    Divergence,
+    MetricCheck,
+    StatisticalComparison,
+    compare_sets,
+    random_policy_return,
+    task_threshold,
+)
+from harness.errors import BaselineError
+from harness.policy import GatePolicy, PublishedReference
+
+__all__ = [
+    "WHAT_A_PASS_MEANS",
+    "ConfigChange",
+    "DriftRow",
+    "ExactCheck",
+    "GateDecision",
+    "Provenance",
+    "Verdict",
+    "check_grid",
+    "decide",
+    "exact_check",
+    "provenance",
+    "verify_manifest",
+    "verify_sets",
+]
+
+#: The sentence every report carries.
+WHAT_A_PASS_MEANS = (
+    "A pass means no check found the candidate significantly worse than its reference at the chosen error "
+    "rate; it does not prove the code correct, and an inconclusive check is not evidence of equivalence."
+)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class ConfigChange:
+    """One resolved configuration key whose value differs (``None`` where a side lacks the key)."""
+
+    key: str
+    baseline: Any
+    candidate: Any
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class DriftRow:
+    """One installed component whose version differs between baseline and candidate."""
+
+    name: str
+    baseline: str | None
+    candidate: str | None
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Provenance:
+    """Where the two sides came from and how their configurations and versions differ."""
+
+    baseline_label: str
+    candidate_label: str
+    baseline_hash: str | None
+    candidate_hash: str
+    changes: tuple[ConfigChange, ...]
+    drift: tuple[DriftRow, ...]
+
+    @property
+    def same_config(self) -> bool:
+        return self.baseline_hash == self.candidate_hash
+
+    @property
+    def reading(self) -> str:
+        if self.baseline_hash is None:
+            return "checked against published summary statistics: no configuration or versions to compare."
+        config = ("config hash equal" if self.same_config else
+                  f"config hash differs ({len(self.changes)} key{'s' if len(self.changes) != 1 else ''} changed: "
+                  + ", ".join(c.key for c in self.changes[:5]) + (", ..." if len(self.changes) > 5 else "") + ")")
+        versions = ("same installed versions" if not self.drift else
+                    "version drift in " + ", ".join(d.name for d in self.drift))
+        return f"{config}; {versions}."
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class ExactCheck:
+    """The bitwise comparison of every seed's curve.
+
+    ``status`` is ``"identical"``, ``"differs"`` or ``"skipped"``; ``reason`` says why it was
+    skipped; on a difference ``seed``/``step`` name the first seed (manifest order) and
+    checkpoint that differ, with both sides' evaluation returns there.
+    """
+
+    status: str
+    reason: str
+    seed: str | None = None
+    step: int | None = None
+    baseline_returns: tuple[float, ...] | None = None
+    candidate_returns: tuple[float, ...] | None = None
+
+    @property
+    def reading(self) -> str:
+        if self.status == "identical":
+            return "every seed's curve is bitwise identical to the baseline."
+        if self.status == "skipped":
+            return f"exact check skipped: {self.reason}."
+        return (f"curves are not bitwise identical: first difference at seed {self.seed}, checkpoint step "
+                f"{self.step} — a numerics change or nondeterminism.")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class GateDecision:
+    """The gate's outcome, the reasons for it (one line per failing check) and the failing checks' names."""
+
+    passed: bool
+    reasons: tuple[str, ...]
+    failing: tuple[str, ...] = ()
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Verdict:
+    """Everything verification found, and the gate's decision (with the curves it was computed from)."""
+
+    manifest: str
+    provenance: Provenance
+    exact: ExactCheck
+    checks: tuple[MetricCheck, ...]
+    divergence: Divergence | None
+    gate: GateDecision
+    policy: GatePolicy
+    floor: float | None
+    threshold: float | None
+    baseline_set: CurveSet | None = dataclasses.field(default=None, repr=False)
+    candidate_set: CurveSet | None = dataclasses.field(default=None, repr=False)
+
+    @property
+    def passed(self) -> bool:
+        return self.gate.passed
+
+    @property
+    def summary(self) -> str:
+        """One line: the gate's outcome and the count of each verdict."""
+        counts = {v: sum(c.verdict == v for c in self.checks) for v in ("equivalent", "better", "worse", "inconclusive")}
+        listed = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
+        return f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {listed or 'no checks'}."
+
+    def explain(self) -> str:
+        """A plain-text explanation: the summary, each layer's reading and the gate's reasons."""
+        lines = [self.summary, "provenance: " + self.provenance.reading, self.exact.reading]
+        lines += [c.reading for c in self.checks]
+        if self.divergence is not None:
+            lines.append(self.divergence.reading)
+        lines += [f"gate: {r}" for r in self.gate.reasons]
+        lines.append(WHAT_A_PASS_MEANS)
+        return "\n".join(lines)
+
+
+def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
+    if isinstance(value, Mapping) and value:
+        out: dict[str, Any] = {}
+        for key, item in value.items():
+            out.update(_flatten(item, f"{prefix}.{key}" if prefix else str(key)))
+        return out
+    return {prefix: value}
+
+
+def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
+    """Compare configurations (key by key) and installed versions of the two sides."""
+    if baseline is None:
+        return Provenance("published references", candidate.label, None, candidate.config_hash, (), ())
+    old, new = _flatten(baseline.config), _flatten(candidate.config)
+    changes = tuple(ConfigChange(k, old.get(k), new.get(k)) for k in sorted(old.keys() | new.keys())
+                    if old.get(k) != new.get(k))
+    drift = tuple(DriftRow(k, baseline.versions.get(k), candidate.versions.get(k))
+                  for k in sorted(baseline.versions.keys() | candidate.versions.keys())
+                  if baseline.versions.get(k) != candidate.versions.get(k))
+    return Provenance(baseline.label, candidate.label, baseline.config_hash, candidate.config_hash, changes, drift)
+
+
+def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance, policy: GatePolicy) -> ExactCheck:
+    """Bitwise comparison of every seed's curve, when the configuration and versions match."""
+    if baseline is None:
+        return ExactCheck("skipped", "the reference is published summary statistics, not curves")
+    if not policy.bitwise:
+        return ExactCheck("skipped", "turned off by the policy (bitwise = false)")
+    if not prov.same_config:
+        return ExactCheck("skipped", "the configuration differs, so the curves are not expected to be identical")
+    if prov.drift:
+        names = ", ".join(f"{d.name} {d.baseline} -> {d.candidate}" for d in prov.drift)
+        return ExactCheck("skipped", f"installed versions differ ({names}); the statistical checks decide")
+    base = {r.seed: r.curve for r in baseline.runs}
+    for run in candidate.runs:
+        old = base.get(run.seed)
+        if old is None:
+            return ExactCheck("skipped", f"seed {run.seed.label} is not in the baseline")
+        for a, b in zip(old.checkpoints, run.curve.checkpoints, strict=True):
+            if a.step != b.step or np.asarray(a.returns).tobytes() != np.asarray(b.returns).tobytes():
+                return ExactCheck("differs", "", run.seed.label, b.step, a.returns, b.returns)
+    return ExactCheck("identical", "")
+
+
+def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
+    """Apply the gate policy to the statistical verdicts."""
+    reasons, failing = [], []
+    for c in checks:
+        if c.verdict == "worse" and not (policy.ignore_small and c.within_margin):
+            reasons.append(f"{c.name} is significantly worse ({c.estimate:+.4g}, Holm-adjusted p = {c.pvalue:.3g})")
+            failing.append(c.name)
+        elif c.verdict == "inconclusive" and policy.strict:
+            reasons.append(f"{c.name} is inconclusive and the policy is strict (about {c.seeds_needed} seeds per side would settle it)")
+            failing.append(c.name)
+    if not reasons:
+        ignored = [c.name for c in checks if c.verdict == "worse"]
+        note = f" (significant but within the margin, ignored by policy: {', '.join(ignored)})" if ignored else ""
+        return GateDecision(True, (f"no check is significantly worse{note}",))
+    return GateDecision(False, tuple(reasons), tuple(failing))
+
+
+def verify_sets(
+    baseline: CurveSet | None,
+    candidate: CurveSet,
+    policy: GatePolicy,
+    *,
+    references: Sequence[PublishedReference] = (),
+    floor: float | None = None,
+    threshold: float | None = None,
+) -> Verdict:
+    """Every verification layer for two curve sets (or one and published references)."""
+    prov = provenance(baseline, candidate)
+    exact = exact_check(baseline, candidate, prov, policy)
+    stats: StatisticalComparison = compare_sets(baseline, candidate, policy, references=references,
+                                                floor=floor, threshold=threshold)
+    return Verdict(
+        manifest=candidate.manifest, provenance=prov, exact=exact, checks=stats.checks,
+        divergence=stats.divergence, gate=decide(stats.checks, policy), policy=policy,
+        floor=floor, threshold=policy.threshold if policy.threshold is not None else threshold,
+        baseline_set=baseline, candidate_set=candidate,
+    )
+
+
+def check_grid(manifest: Any, baseline: Baseline) -> None:
+    """Refuse a baseline whose checkpoint grid differs from the manifest's (before anything runs)."""
+    planned = tuple(manifest.evaluation.checkpoint_steps(manifest.budget))
+    recorded = tuple(int(s) for s in baseline.runs[0].curve.steps)
+    if planned != recorded:
+        raise BaselineError(
+            f"{baseline.path}: different checkpoint grids: the baseline has steps {list(recorded)}, the manifest "
+            f"{manifest.name!r} plans {list(planned)}; curves can only be compared on the same grid: restore "
+            "[budget] and [evaluation].every, or record a new baseline with `rlharness record --overwrite`"
+        )
+
+
+def _needs_span(policy: GatePolicy, references: Sequence[PublishedReference]) -> bool:
+    metrics = set(policy.metrics) | {r.metric for r in references}
+    return (policy.margin is None and (policy.floor is None or policy.threshold is None)
+            and any(m != "steps-to-threshold" and m not in policy.margins for m in metrics))
+
+
+def verify_manifest(
+    manifest: Any,
+    results: Any,
+    *,
+    baseline: Baseline | None,
+    policy: GatePolicy | None = None,
+    candidate_label: str | None = None,
+) -> Verdict:
+    """Verify a manifest's results against its baseline and its published references.
+
+    Parameters
+    ----------
+    manifest
+        The ``harness.manifest.Manifest``.
+    results
+        Its ``harness.store.ResultSet`` (the rerun).
+    baseline
+        The recorded baseline, or ``None`` to use the manifest's ``[[reference]]`` tables only.
+    policy
+        The gate policy; the manifest's ``[check]`` by default.
+    candidate_label
+        How reports name the rerun.
+
+    Raises
+    ------
+    BaselineError
+        The baseline belongs to another manifest, has another checkpoint grid, or there is
+        neither a baseline nor a published reference.
+    RunFailedError, ResultsError
+        Seeds failed or are missing: never verified silently on fewer seeds than asked.
+    """
+    policy = policy or manifest.check
+    if baseline is not None:
+        if baseline.manifest != manifest.name:
+            raise BaselineError(f"{baseline.path}: [manifest] is {baseline.manifest!r}, not {manifest.name!r}: "
+                                f"pass the baseline of {manifest.name!r}")
+        check_grid(manifest, baseline)
+    candidate = CurveSet.from_results(results, label=candidate_label or f"rerun of {manifest.name}",
+                                      config=manifest.resolved_config(), expected=len(manifest.seeds))
+    references = tuple(manifest.references)
+    floor = threshold = None
+    if policy.threshold is None:
+        threshold = task_threshold(manifest.task)
+    if _needs_span(policy, references):
+        floor = random_policy_return(manifest.task, manifest.evaluation)
+    return verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
+                       references=references, floor=floor, threshold=threshold)
