@@ -32,7 +32,7 @@ class ExitCode(enum.IntEnum):
 
 
 #: Subcommand modules under ``harness.cli``, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("record", "verify", "compare", "pin", "drift")
+COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pin", "drift")
 
 
 def build_parser() -> argparse.ArgumentParser:

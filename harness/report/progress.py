@@ -1,0 +1,163 @@
+"""Live progress of ``rlharness run`` and its closing summary table.
+
+:class:`RunProgress` is an ``on_event`` callback for :func:`harness.runner.run_specs`:
+one row per seed (environment steps done, latest mean evaluation return,
+elapsed time) and an overall row with the ETA. It draws nothing when the
+console is not a terminal (CI logs get the summary table only).
+:class:`RunSummary` renders a :class:`~harness.runner.RunOutcome` as a table:
+per seed the status, where the result came from, final return, area under the
+curve and training wall time, and the reason of every failure.
+"""
+
+from __future__ import annotations
+
+from rich.console import Console, Group, RenderableType
+from rich.progress import (
+    BarColumn,
+    MofNCompleteColumn,
+    Progress,
+    SpinnerColumn,
+    TaskID,
+    TextColumn,
+    TimeElapsedColumn,
+    TimeRemainingColumn,
+)
+from rich.table import Table
+from rich.text import Text
+
+from harness.executors import RunEvent
+from harness.metrics import area_under_curve, final_return
+from harness.runner import RunOutcome
+
+__all__ = ["RunProgress", "RunSummary", "format_return"]
+
+#: With more seeds than this, finished seeds leave the live display to keep it short.
+MAX_ROWS = 16
+
+
+def format_return(value: float | None) -> str:
+    """A return for a table cell: 4 significant digits, ``"-"`` when there is none."""
+    return "-" if value is None else f"{value:.4g}"
+
+
+class RunProgress:
+    """Live per-seed progress fed with :class:`~harness.executors.RunEvent` values.
+
+    Parameters
+    ----------
+    console
+        Where to draw; nothing is drawn when ``console.is_terminal`` is False.
+
+    Examples
+    --------
+    >>> from io import StringIO
+    >>> with RunProgress(Console(file=StringIO())) as progress:
+    ...     progress(RunEvent("planned", 0, "7", budget=100))
+    """
+
+    def __init__(self, console: Console):
+        self.progress = Progress(
+            SpinnerColumn(),
+            TextColumn("{task.description}"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TextColumn("steps  return {task.fields[ret]:>8}"),
+            TimeElapsedColumn(),
+            TimeRemainingColumn(),
+            console=console,
+            disable=not console.is_terminal,
+        )
+        self._rows: dict[int, TaskID] = {}
+        self._budget: dict[int, int] = {}
+        self._overall: TaskID | None = None
+        self._done = 0
+        self._failed = 0
+
+    def __enter__(self) -> RunProgress:
+        self.progress.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.progress.stop()
+
+    def _overall_row(self) -> TaskID:
+        if self._overall is None:
+            self._overall = self.progress.add_task("all seeds", total=0, ret="", start=True)
+        return self._overall
+
+    def _finish(self, event: RunEvent, label: str) -> None:
+        row = self._rows[event.index]
+        budget = self._budget[event.index]
+        before = self.progress.tasks[row].completed
+        self.progress.update(row, completed=budget, ret=label)
+        self.progress.stop_task(row)
+        if len(self._rows) > MAX_ROWS:
+            self.progress.update(row, visible=False)
+        self._done += 1
+        self._failed += event.kind == "failed"
+        failed = f", {self._failed} failed" if self._failed else ""
+        self.progress.update(
+            self._overall_row(), advance=budget - before,
+            description=f"all seeds ({self._done}/{len(self._rows)} done{failed})",
+        )
+
+    def __call__(self, event: RunEvent) -> None:
+        if event.kind == "planned":
+            self._budget[event.index] = event.budget
+            self._rows[event.index] = self.progress.add_task(f"seed {event.seed}", total=event.budget, ret="", start=False)
+            overall = self._overall_row()
+            self.progress.update(overall, total=sum(self._budget.values()))
+        elif event.kind == "started":
+            self.progress.start_task(self._rows[event.index])
+        elif event.kind == "checkpoint":
+            row = self._rows[event.index]
+            before = self.progress.tasks[row].completed
+            self.progress.update(row, completed=event.step, ret=format_return(event.mean_return))
+            self.progress.update(self._overall_row(), advance=event.step - before)
+        elif event.kind == "finished":
+            self._finish(event, format_return(event.mean_return) if event.source == "trained" else event.source)
+        elif event.kind == "failed":
+            self._finish(event, "FAILED")
+
+
+class RunSummary:
+    """The closing table of a run; print it with ``console.print(RunSummary(outcome))``."""
+
+    def __init__(self, outcome: RunOutcome):
+        self.outcome = outcome
+
+    def table(self) -> Table:
+        out = self.outcome
+        table = Table(title=f"{out.results.manifest}: {len(out.results.records)} seeds", title_justify="left")
+        for name, justify in (("seed", "left"), ("status", "left"), ("from", "left"), ("final return", "right"),
+                              ("area under curve", "right"), ("wall time", "right")):
+            table.add_column(name, justify=justify)
+        for record in out.results.records:
+            i = record.spec.index
+            wall = out.wall_seconds.get(i)
+            table.add_row(
+                record.spec.seed.label,
+                Text("ok") if record.ok else Text("FAILED", style="bold red"),
+                out.sources.get(i, "-"),
+                format_return(final_return(record.curve)) if record.ok else "-",
+                format_return(area_under_curve(record.curve)) if record.ok else "-",
+                "-" if wall is None else f"{wall:.1f} s",
+            )
+        return table
+
+    def __rich__(self) -> RenderableType:
+        out = self.outcome
+        parts: list[RenderableType] = [self.table()]
+        failed = out.results.failed()
+        for record in failed:
+            lines = record.failure.strip().splitlines()
+            parts.append(Text(f"seed {record.spec.seed.label} failed: {lines[-1]}", style="red"))
+        done = len(out.results.completed())
+        total = len(out.results.records)
+        counts = {s: sum(1 for v in out.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
+        origin = ", ".join(f"{n} {s}" for s, n in counts.items() if n)
+        status = f"{done} of {total} seeds finished ({origin}) in {out.elapsed:.1f} s; results in {out.folder}"
+        if failed:
+            status += f". {len(failed)} failed: verification will have fewer seeds than the manifest asks"
+        parts.append(Text(status))
+        return Group(*parts)
