@@ -15,6 +15,7 @@ import sys
 from collections.abc import Sequence
 
 from rich.console import Console
+from rich.markup import escape
 
 from harness.errors import HarnessError
 
@@ -60,7 +61,7 @@ def main(argv: Sequence[str] | None = None, *, console: Console | None = None) -
     try:
         return int(args.handler(args, console))
     except HarnessError as exc:
-        console.print(f"[bold red]error:[/] {exc}", markup=True, highlight=False, soft_wrap=True)
+        console.print(f"[bold red]error:[/] {escape(str(exc))}", markup=True, highlight=False, soft_wrap=True)
         return ExitCode.BAD_INPUT
     except KeyboardInterrupt:
         console.print("interrupted: finished runs are kept; run the same command again to resume")
