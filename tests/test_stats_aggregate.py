@@ -1,0 +1,76 @@
+"""IQM and probability of improvement (Agarwal et al. 2021), with stratified bootstrap intervals."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from harness.stats import (
+    bootstrap_iqm,
+    bootstrap_probability_of_improvement,
+    iqm,
+    probability_of_improvement,
+)
+
+
+def test_iqm_values():
+    # Agarwal et al. (2021): IQM is the 25% trimmed mean; CHECK-VALUES.md [recomputed]:
+    # trim_mean(1..10, 0.25) = 5.5; trim_mean([1, 2, 3, 4, 100], 0.25) = 3.0.
+    assert iqm(range(1, 11)) == pytest.approx(5.5)
+    assert iqm([1, 2, 3, 4, 100]) == pytest.approx(3.0)
+    # Robust: one exploding seed barely moves it (common practice).
+    assert iqm([1, 2, 3, 4, 5, 6, 7, 1e9]) == pytest.approx(iqm([1, 2, 3, 4, 5, 6, 7, 8]))
+
+
+def test_probability_of_improvement_values():
+    # Agarwal et al. (2021), ties count one half; CHECK-VALUES.md: [1, 2, 3] vs [2, 2, 4] -> 1/3.
+    assert probability_of_improvement([1, 2, 3], [2, 2, 4]) == pytest.approx(1 / 3)
+    assert probability_of_improvement([2, 2, 4], [1, 2, 3]) == pytest.approx(2 / 3)
+
+
+def test_probability_of_improvement_averages_over_tasks():
+    # Agarwal et al. (2021): computed per task and averaged over tasks (not pooled).
+    x = [1, 2, 3, 10, 10]
+    y = [2, 2, 4, 0, 0]
+    p = probability_of_improvement(x, y, tasks_x=list("aaabb"), tasks_y=list("aaabb"))
+    assert p == pytest.approx((1 / 3 + 1.0) / 2)
+    with pytest.raises(ValueError, match=r"must name the same tasks; only in one of them: \['b', 'c'\]"):
+        probability_of_improvement(x, y, tasks_x=list("aaabb"), tasks_y=list("aaacc")[:5])
+    with pytest.raises(ValueError, match=r"give both `tasks_x` and `tasks_y`"):
+        probability_of_improvement(x, y, tasks_x=list("aaabb"))
+
+
+def test_stratified_iqm_interval_across_tasks():
+    # Stratified bootstrap (Agarwal et al. 2021): runs resampled within each task.
+    rng = np.random.default_rng(np.random.SeedSequence(21))
+    scores = np.concatenate([rng.normal(m, 0.1, 10) for m in (0.2, 0.5, 0.9)])
+    tasks = np.repeat(["t1", "t2", "t3"], 10)
+    r = bootstrap_iqm(scores, tasks=tasks, n_resamples=4000, rng=rng)
+    assert r.method == "stratified percentile"
+    assert r.interval.contains(r.estimate)
+    # Stratification removes the between-task share of the spread: narrower than unstratified.
+    plain = bootstrap_iqm(scores, n_resamples=4000, rng=rng)
+    assert r.interval.width < plain.interval.width
+
+
+def test_probability_of_improvement_interval():
+    rng = np.random.default_rng(np.random.SeedSequence(22))
+    x = np.concatenate([rng.normal(1.0, 1, 12), rng.normal(5.0, 1, 12)])
+    y = np.concatenate([rng.normal(0.0, 1, 12), rng.normal(5.0, 1, 12)])
+    tasks = np.repeat(["a", "b"], 12)
+    r = bootstrap_probability_of_improvement(x, y, tasks_x=tasks, tasks_y=tasks, n_resamples=3000, rng=rng)
+    assert r.estimate == pytest.approx(probability_of_improvement(x, y, tasks_x=tasks, tasks_y=tasks))
+    assert 0.0 <= r.interval.low < r.estimate < r.interval.high <= 1.0
+    one_task = bootstrap_probability_of_improvement(x[:12], y[:12], method="bca", n_resamples=3000, rng=rng)
+    assert one_task.acceleration is not None
+    with pytest.raises(ValueError, match=r"`method` must be 'percentile' when tasks are given"):
+        bootstrap_probability_of_improvement(x, y, tasks_x=tasks, tasks_y=tasks, method="bca")
+
+
+def test_aggregate_iv():
+    with pytest.raises(ValueError, match=r"`x` must hold finite numbers"):
+        iqm([1.0, float("nan")])
+    with pytest.raises(ValueError, match=r"`x` needs at least 1 values, got 0"):
+        iqm([])
+    with pytest.raises(ValueError, match=r"`tasks_x` must give one task per value of `x` \(3\)"):
+        probability_of_improvement([1, 2, 3], [1, 2], tasks_x=["a"], tasks_y=["a", "a"])
