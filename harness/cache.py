@@ -18,6 +18,7 @@ run once.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import os
 import re
@@ -29,7 +30,7 @@ from filelock import FileLock
 from harness import __version__
 from harness.errors import ResultsError
 from harness.spec import RunSpec, sha256_of
-from harness.store import RunRecord, atomic_write_text, record_from_json, record_text
+from harness.store import RunRecord, atomic_write_text, record_from_json, record_text, same_spec
 
 __all__ = ["DEFAULT_CACHE_DIR", "RunCache", "cache_key"]
 
@@ -108,9 +109,9 @@ class RunCache:
             record = record_from_json(data, where=str(path))
         except (OSError, ValueError, ResultsError):
             return None
-        if not record.ok or record.spec != spec or dict(record.versions) != dict(versions):
+        if not record.ok or not same_spec(record.spec, spec) or dict(record.versions) != dict(versions):
             return None
-        return record
+        return dataclasses.replace(record, spec=spec)
 
     def put(self, record: RunRecord) -> Path | None:
         """Store a successful run under the key of its own spec and versions; failed runs are not cached."""

@@ -51,6 +51,7 @@ from harness.store import (
     read_index,
     read_record,
     record_file_name,
+    same_spec,
     write_index,
     write_record,
 )
@@ -153,8 +154,8 @@ def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunR
         record = read_record(path)
     except ResultsError:
         return None
-    if record.ok and record.spec == spec and dict(record.versions) == dict(versions):
-        return record
+    if record.ok and same_spec(record.spec, spec) and dict(record.versions) == dict(versions):
+        return dataclasses.replace(record, spec=spec)
     return None
 
 

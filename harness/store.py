@@ -34,7 +34,7 @@ from typing import Any
 
 from harness.curves import Checkpoint, LearningCurve
 from harness.errors import ResultsError
-from harness.spec import RunSpec
+from harness.spec import RunSpec, canonical_json
 
 __all__ = [
     "INDEX_FILE",
@@ -49,6 +49,7 @@ __all__ = [
     "record_file_name",
     "record_from_json",
     "record_text",
+    "same_spec",
     "write_index",
     "write_record",
     "write_results",
@@ -124,6 +125,11 @@ class ResultSet:
     def failed(self) -> tuple[RunRecord, ...]:
         """The runs that failed (exception, non-finite returns, time limit, dead worker)."""
         return tuple(r for r in self.records if not r.ok)
+
+
+def same_spec(a: RunSpec, b: RunSpec) -> bool:
+    """Whether two specs describe the same run, as their JSON says (a tuple and a list compare equal)."""
+    return canonical_json(a.to_json()) == canonical_json(b.to_json())
 
 
 def record_file_name(spec: RunSpec) -> str:

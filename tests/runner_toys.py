@@ -50,6 +50,13 @@ def toy(run: RunSpec):
         yield Checkpoint(step, tuple(float(r) for r in returns))
 
 
+def skipping(run: RunSpec):
+    """A broken trainer: it leaves out the second planned checkpoint."""
+    for n, step in enumerate(run.checkpoint_steps()):
+        if n != 1:
+            yield Checkpoint(step, (0.0,))
+
+
 def toy_specs(
     n: int = 4, *, config: dict | None = None, budget: int = 100, trainer: str = "runner_toys:toy", name: str = "toy"
 ) -> tuple[RunSpec, ...]:

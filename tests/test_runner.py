@@ -1,0 +1,166 @@
+"""Runner: determinism across workers, order, resumption and cache; lockstep; events; interrupts; input checks."""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import random
+
+import pytest
+from runner_toys import folder_bytes, toy_specs
+
+from harness.cache import RunCache
+from harness.errors import ManifestError
+from harness.executors import Task, WorkerResult
+from harness.executors.work import lockstep_size, run_task
+from harness.manifest import parse_manifest
+from harness.runner import run_manifest, run_specs
+from harness.store import read_results, record_text
+
+TABULAR = """
+name = "tiny-taxi"
+[task]
+id = "Taxi-v4"
+[trainer]
+use = "tabular-q"
+[trainer.settings]
+explore_decay_steps = 2000
+[budget]
+env_steps = 3000
+[evaluation]
+every = 1000
+episodes = 5
+episode_seed = 3
+[seeds]
+count = 4
+root = 11
+"""
+
+DQN = """
+name = "tiny-dqn"
+[task]
+id = "CartPole-v1"
+[trainer]
+use = "dqn"
+[trainer.settings]
+hidden = [16]
+warmup_steps = 50
+minibatch = 16
+memory_size = 500
+[budget]
+env_steps = 300
+[evaluation]
+every = 150
+episodes = 2
+[seeds]
+count = 3
+root = 5
+"""
+
+
+def _manifest(text, tmp_path):
+    path = tmp_path / "m.toml"
+    path.write_text(text)
+    return parse_manifest(text, path=path)
+
+
+def _det_check(manifest, tmp_path):
+    """Same manifest: 1 worker, 2 workers in shuffled order, resumed from a partial folder, from the cache."""
+    one = run_manifest(manifest, results_dir=tmp_path / "one", workers=1, use_cache=False)
+    assert one.ok, [r.failure for r in one.results.failed()]
+    specs = list(manifest.runs())
+    random.Random(0).shuffle(specs)
+    run_specs(specs, results_dir=tmp_path / "two", workers=2, use_cache=False)
+    expected = folder_bytes(tmp_path / "one")
+    assert len(expected) == len(specs)
+    assert folder_bytes(tmp_path / "two") == expected
+    # Resumed: start from a folder holding only the first seed's file.
+    partial = tmp_path / "partial"
+    partial.mkdir()
+    first = sorted(expected)[0]
+    (partial / first).write_bytes(expected[first])
+    resumed = run_manifest(manifest, results_dir=partial, workers=2, use_cache=False)
+    assert sorted(resumed.sources.values()).count("resumed") == 1
+    assert folder_bytes(partial) == expected
+    # Cached: a second results folder answered from the cache the first run filled.
+    cache = RunCache(tmp_path / "cache")
+    run_manifest(manifest, results_dir=tmp_path / "c1", workers=2, cache=cache)
+    hit = run_manifest(manifest, results_dir=tmp_path / "c2", workers=2, cache=cache)
+    assert set(hit.sources.values()) == {"cache"}
+    assert folder_bytes(tmp_path / "c2") == expected
+    # Read back, the records are the ones trained (compared as JSON: settings tuples come back as lists).
+    assert [record_text(r) for r in read_results(tmp_path / "c2").records] == [record_text(r) for r in one.results.records]
+    return one
+
+
+def test_tabular_results_are_byte_identical_whatever_workers_order_resume_or_cache(tmp_path):
+    _det_check(_manifest(TABULAR, tmp_path), tmp_path)
+
+
+def test_short_dqn_in_lockstep_is_byte_identical_whatever_workers_order_resume_or_cache(tmp_path):
+    manifest = _manifest(DQN, tmp_path)
+    spec = manifest.runs()[1]
+    assert lockstep_size(spec) > len(manifest.runs())  # hidden=[16]: all three seeds train in one group
+    one = _det_check(manifest, tmp_path)
+    # The runner's lockstep group gives seed 1 the curve it gets trained alone.
+    solo = WorkerResult.from_plain(run_task(Task((spec,)).payload()))
+    assert solo[0].curve == one.results.records[1].curve
+
+
+def test_events_follow_each_run_through_its_life(tmp_path):
+    events = []
+    run_specs(toy_specs(2), results_dir=tmp_path, workers=1, use_cache=False, on_event=events.append)
+    for index in (0, 1):
+        kinds = [e.kind for e in events if e.index == index]
+        assert kinds == ["planned", "started"] + ["checkpoint"] * 5 + ["finished"]
+    checkpoints = [e.step for e in events if e.index == 0 and e.kind == "checkpoint"]
+    assert checkpoints == [0, 25, 50, 75, 100]
+    assert events[0].budget == 100
+
+
+def test_interrupt_stops_workers_and_keeps_finished_runs(tmp_path):
+    def stop_after_first(event):
+        if event.kind == "finished":
+            raise KeyboardInterrupt
+
+    specs = toy_specs(4, config={"pause": 0.05})
+    with pytest.raises(KeyboardInterrupt):
+        run_specs(specs, results_dir=tmp_path, workers=2, use_cache=False, on_event=stop_after_first)
+    assert mp.active_children() == []
+    kept = folder_bytes(tmp_path)
+    assert 1 <= len(kept) < 4 and not (tmp_path / "index.json").exists()
+    out = run_specs(specs, results_dir=tmp_path, workers=2, use_cache=False)
+    assert list(out.sources.values()).count("resumed") == len(kept)
+    assert all(folder_bytes(tmp_path)[k] == v for k, v in kept.items())
+
+
+def test_changed_config_drops_the_old_index_and_retrains(tmp_path):
+    run_specs(toy_specs(2), results_dir=tmp_path, workers=1, use_cache=False)
+    changed = toy_specs(2, config={"pause": 0.0})
+    out = run_specs(changed, results_dir=tmp_path, workers=1, use_cache=False)
+    assert set(out.sources.values()) == {"trained"}
+    assert read_results(tmp_path).config_hash == changed[0].config_hash
+
+
+def test_trainer_that_skips_a_checkpoint_fails_with_the_plan(tmp_path):
+    out = run_specs(toy_specs(1, trainer="runner_toys:skipping"), results_dir=tmp_path, workers=1, use_cache=False)
+    assert out.results.records[0].failure == (
+        "trainer yielded a checkpoint at step 50, expected step 25 (plan [0, 25, 50, 75, 100])"
+    )
+
+
+def test_input_validation_names_the_parameter(tmp_path):
+    specs = toy_specs(3)
+    with pytest.raises(ValueError, match="`specs` must hold at least one RunSpec"):
+        run_specs([], results_dir=tmp_path)
+    with pytest.raises(ValueError, match=r"complete plan with indices 0..1, got indices \[0, 2\]"):
+        run_specs([specs[0], specs[2]], results_dir=tmp_path)
+    with pytest.raises(TypeError, match="`specs` must hold RunSpec values, got str"):
+        run_specs(["x"], results_dir=tmp_path)
+    with pytest.raises(ValueError, match="`time_limit` must be a positive number of seconds or None, got 0"):
+        run_specs(specs, results_dir=tmp_path, time_limit=0)
+    with pytest.raises(ValueError, match="`executor` must be one of .*Did you mean 'dask'"):
+        run_specs(specs, results_dir=tmp_path, executor="dsak", use_cache=False)
+    with pytest.raises(ValueError, match="`workers` must be a positive integer, got 0"):
+        run_specs(specs, results_dir=tmp_path, workers=0, use_cache=False)
+    with pytest.raises(ManifestError, match="unknown trainer 'nope'"):
+        run_specs(toy_specs(1, trainer="nope"), results_dir=tmp_path / "n", use_cache=False)
