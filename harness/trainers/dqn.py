@@ -215,10 +215,15 @@ def bellman_targets(
     if q_next_select is None:
         best = q_next.max(axis=-1)
     else:
-        choice = np.argmax(q_next_select, axis=-1)[..., None]
-        best = np.take_along_axis(q_next, choice, axis=-1)[..., 0]
-    not_terminal = 1 - terminated
+        best = _pick(q_next, np.argmax(q_next_select, axis=-1))
+    not_terminal = 1.0 - np.asarray(terminated, dtype=q_next.dtype)
     return (reward + discount * not_terminal * best).astype(q_next.dtype, copy=False)
+
+
+def _pick(values: np.ndarray, index: np.ndarray) -> np.ndarray:
+    """``values[..., index]`` along the last axis, computed exactly as a sum over one entry."""
+    onehot = index[..., None] == np.arange(values.shape[-1])
+    return np.sum(values, axis=-1, where=onehot)
 
 
 def lockstep_size(settings: DQNSettings) -> int:
@@ -363,18 +368,19 @@ class _Agent:
         self.grad_views = self.layout.views(self.grads)
         self.adam = Adam(self.params.shape, dtype=dt, step_size=s.step_size, beta1=s.adam_beta1,
                          beta2=s.adam_beta2, eps=s.adam_eps)
-        # The online network sees [s; s'] when s' needs its values (Double DQN, or no target network).
+        # When s' needs the online network's values (Double DQN, or no target network), the
+        # online network takes the interleaved rows s_0, s'_0, s_1, s'_1, ... in one pass.
         self.joint = s.double_q or not has_target
-        rows = 2 * b if self.joint else b
-        self.online = MLP(self.layout, k=k, rows=rows, dtype=dt, backward_rows=b)
+        self.online = MLP(self.layout, k=k, rows=2 * b if self.joint else b, dtype=dt,
+                          backward_step=2 if self.joint else 1)
         self.target_net = MLP(self.layout, k=k, rows=b, dtype=dt) if has_target else None
         self.actor = MLP(self.layout, k=k, rows=1, dtype=dt)
         self._index = np.empty((k, b), dtype=np.intp)
-        self._action = np.empty((k, b), dtype=np.intp)
-        self._reward = np.empty((k, b), dtype=dt)
-        self._terminated = np.empty((k, b), dtype=dt)
-        self._next_obs = self.target_net.x if has_target else np.ones((k, b, obs_dim + 1), dtype=dt)
-        self._grad_out = np.zeros((k, b, n_actions), dtype=dt)
+        self._pairs = np.ones((k, b, 2, obs_dim + 1), dtype=dt)
+        self._scalars = np.empty((k, b, 3), dtype=dt)
+        self._action_ids = np.arange(n_actions, dtype=dt)
+        self._onehot = np.empty((k, b, n_actions), dtype=bool)
+        self._grad_out = np.empty((k, b, n_actions), dtype=dt)
         self._sq_norm = np.empty((k, 1, 1), dtype=dt)
         self._diff = np.empty_like(self.params) if s.target == "polyak" else None
 
@@ -390,46 +396,47 @@ class _Agent:
 
     def update(self, memory: ReplayMemory, rngs: Sequence[np.random.Generator]) -> None:
         """One gradient step per seed on a minibatch drawn from its own replay memory."""
-        s, b = self.s, self.s.minibatch
-        online = self.online
-        idx = memory.sample_indices(rngs, b, self._index)
-        memory.gather(idx, obs=online.x[:, :b], next_obs=self._next_obs, action=self._action,
-                      reward=self._reward, terminated=self._terminated)
+        s, k, b = self.s, self.k, self.s.minibatch
+        pairs, scalars = self._pairs, self._scalars
+        memory.sample(rngs, index=self._index, pairs=pairs, scalars=scalars)
         if self.joint:
-            online.x[:, b:] = self._next_obs
-        q_all = online.forward(self.weights)
-        q = q_all[:, :b]
-        if self.target_net is None:
-            q_next, select = q_all[:, b:], None
+            x = pairs.reshape(k, 2 * b, -1)
+            q_all = self.online.forward(self.weights, x)
+            q, q_next_online = q_all[:, 0::2], q_all[:, 1::2]
         else:
-            q_next = self.target_net.forward(self.target_weights)
-            select = q_all[:, b:] if s.double_q else None
-        y = bellman_targets(self._reward, self._terminated, q_next, discount=s.discount, q_next_select=select)
-        chosen = self._action[..., None]
-        td = np.take_along_axis(q, chosen, axis=-1)
-        td -= y[..., None]
+            x = pairs[:, :, 0]
+            q = self.online.forward(self.weights, x)
+        if self.target_net is None:
+            q_next, select = q_next_online, None
+        else:
+            q_next = self.target_net.forward(self.target_weights, pairs[:, :, 1])
+            select = q_next_online if s.double_q else None
+        y = bellman_targets(scalars[..., ReplayMemory.REWARD], scalars[..., ReplayMemory.TERMINATED], q_next,
+                            discount=s.discount, q_next_select=select)
+        onehot = self._onehot
+        np.equal(scalars[..., ReplayMemory.ACTION, None], self._action_ids, out=onehot)
+        td = np.sum(q, axis=-1, where=onehot)  # Q(s, a), exactly
+        td -= y
         if s.loss == "huber":
             np.clip(td, -s.huber_delta, s.huber_delta, out=td)
-        td *= 1.0 / b  # d(mean loss)/dQ(s, a)
-        grad_out = self._grad_out
-        grad_out.fill(0)
-        np.put_along_axis(grad_out, chosen, td, axis=-1)
-        online.backward(self.weights, grad_out, self.grad_views)
+        td *= 1.0 / b  # d(mean loss) / dQ(s, a)
+        np.multiply(onehot, td[..., None], out=self._grad_out)
+        self.online.backward(self.weights, x, self._grad_out, self.grad_views)
         if s.max_grad_norm > 0:
             self._clip_gradient(s.max_grad_norm)
         self.adam.step(self.params, self.grads)
         if s.target == "polyak":
             # target <- target + rate * (online - target)
-            diff = self._diff
-            np.subtract(self.params, self.target_params, out=diff)
-            diff *= s.polyak_rate
-            self.target_params += diff
+            np.subtract(self.params, self.target_params, out=self._diff)
+            self._diff *= s.polyak_rate
+            self.target_params += self._diff
 
     def _clip_gradient(self, max_norm: float) -> None:
         """Scale each seed's whole gradient to norm ``max_norm`` when it is longer (per seed)."""
         g = self.grads
         np.matmul(g[:, None, :], g[:, :, None], out=self._sq_norm)
-        norms = np.sqrt(self._sq_norm[:, 0, 0].astype(np.float64))
-        if np.any(norms > max_norm):
+        sq = self._sq_norm[:, 0, 0]
+        if (sq > max_norm * max_norm).any():
+            norms = np.sqrt(sq.astype(np.float64))
             scale = np.where(norms > max_norm, max_norm / norms, 1.0).astype(g.dtype)
             g *= scale[:, None]

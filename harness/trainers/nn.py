@@ -18,6 +18,7 @@ nothing of the network's size.
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -117,8 +118,8 @@ class MLP:
     """Forward and backward passes of K stacked ReLU networks on ``rows`` inputs each.
 
     The object owns the activation buffers of one batch shape (a workspace);
-    the parameters are passed in, so one workspace serves the online and the
-    target network alike.
+    parameters and inputs are passed in, so one workspace serves the online
+    and the target network alike.
 
     Parameters
     ----------
@@ -130,34 +131,38 @@ class MLP:
         Inputs per network per call.
     dtype
         Floating dtype of every buffer.
-    backward_rows
-        Rows that gradients are taken over (the first ``backward_rows`` of the
-        batch; 0 = forward only). Lets one forward pass serve ``[s; s']``
-        while the loss involves only ``s``.
+    backward_step
+        Gradients are taken over rows ``0, step, 2 * step, ...`` of the batch
+        (0 = forward only). With 2, one forward pass over the interleaved rows
+        ``s_0, s'_0, s_1, s'_1, ...`` serves both the loss on ``s`` and the
+        values of ``s'``.
     """
 
-    def __init__(self, layout: Layout, *, k: int, rows: int, dtype: np.dtype | str, backward_rows: int = 0):
-        if not 0 <= backward_rows <= rows:
-            raise ValueError(f"`backward_rows` must be in [0, rows={rows}], got {backward_rows}")
+    def __init__(self, layout: Layout, *, k: int, rows: int, dtype: np.dtype | str, backward_step: int = 0):
+        if backward_step < 0 or (backward_step and rows % backward_step):
+            raise ValueError(f"`backward_step` must be 0 or divide rows={rows}, got {backward_step}")
         self.layout = layout
-        self.k, self.rows, self.backward_rows = k, rows, backward_rows
+        self.k, self.rows, self.backward_step = k, rows, backward_step
         dt = np.dtype(dtype)
         sizes = layout.sizes
-        #: The input buffer ``(K, rows, n_in + 1)``; its last column is 1. Write inputs into ``x[..., :-1]``.
+        #: An input buffer ``(K, rows, n_in + 1)`` whose last column is 1, used when
+        #: :meth:`forward` is given no input: write inputs into ``x[..., :-1]``.
         self.x = np.ones((k, rows, sizes[0] + 1), dtype=dt)
         # Hidden activations with their trailing ones column, then the output.
         self._acts = [np.ones((k, rows, n + 1), dtype=dt) for n in sizes[1:-1]]
         self.out = np.empty((k, rows, sizes[-1]), dtype=dt)
-        b = backward_rows
+        b = rows // backward_step if backward_step else 0
         self._deltas = [np.empty((k, b, n), dtype=dt) for n in sizes[1:-1]]
         self._masks = [np.empty((k, b, n), dtype=bool) for n in sizes[1:-1]]
 
-    def forward(self, weights: Sequence[np.ndarray]) -> np.ndarray:
-        """Compute the outputs for the inputs in ``self.x``; returns ``self.out`` ``(K, rows, n_out)``.
+    def forward(self, weights: Sequence[np.ndarray], x: np.ndarray | None = None) -> np.ndarray:
+        """Compute the outputs for inputs ``x`` (default ``self.x``); returns ``self.out`` ``(K, rows, n_out)``.
 
-        ``weights`` are the per-layer views of a fused parameter array (:meth:`Layout.views`).
+        ``weights`` are the per-layer views of a fused parameter array
+        (:meth:`Layout.views`); ``x`` is ``(K, rows, n_in + 1)`` with a last
+        column of ones (any strides whose last axis is contiguous).
         """
-        inp = self.x
+        inp = self.x if x is None else x
         for w, act in zip(weights[:-1], self._acts):
             h = act[..., :-1]
             np.matmul(inp, w, out=h)
@@ -166,25 +171,27 @@ class MLP:
         np.matmul(inp, weights[-1], out=self.out)
         return self.out
 
-    def backward(self, weights: Sequence[np.ndarray], grad_out: np.ndarray, grads: Sequence[np.ndarray]) -> None:
-        """Back-propagate ``grad_out`` (dL/d output, ``(K, backward_rows, n_out)``) into ``grads``.
+    def backward(self, weights: Sequence[np.ndarray], x: np.ndarray | None, grad_out: np.ndarray,
+                 grads: Sequence[np.ndarray]) -> None:
+        """Back-propagate ``grad_out`` (dL/d output on the backward rows) into ``grads``.
 
-        Uses the activations of the last :meth:`forward`; ``grads`` are the
-        per-layer views of a fused gradient array and are overwritten.
+        Uses the activations of the last :meth:`forward`, whose input ``x``
+        (None for ``self.x``) must be passed again. ``grads`` are the per-layer
+        views of a fused gradient array and are overwritten.
         """
-        b = self.backward_rows
-        if b == 0:
-            raise ValueError("this MLP workspace was built with backward_rows=0 (forward only)")
+        step = self.backward_step
+        if step == 0:
+            raise ValueError("this MLP workspace was built with backward_step=0 (forward only)")
         delta = grad_out
-        inputs = [self.x, *self._acts]
+        inputs = [self.x if x is None else x, *self._acts]
         for layer in range(len(weights) - 1, -1, -1):
-            a_prev = inputs[layer][:, :b]
+            a_prev = inputs[layer][:, ::step]
             np.matmul(a_prev.transpose(0, 2, 1), delta, out=grads[layer])
             if layer == 0:
                 break
             below = self._deltas[layer - 1]
             np.matmul(delta, weights[layer][:, :-1].transpose(0, 2, 1), out=below)
-            relu_mask(below, inputs[layer][:, :b, :-1], self._masks[layer - 1])
+            relu_mask(below, a_prev[..., :-1], self._masks[layer - 1])
             delta = below
 
 
@@ -192,10 +199,12 @@ class Adam:
     """Adam over a fused ``(K, P)`` parameter array, keeping subnormal floats out of its moments.
 
     Implements Algorithm 1 of Kingma & Ba (2015) in the form given at the end
-    of their section 2: ``alpha_t = alpha * sqrt(1 - beta2**t) / (1 - beta1**t)``
+    of their section 2, ``alpha_t = alpha * sqrt(1 - beta2**t) / (1 - beta1**t)``
     and ``theta -= alpha_t * m / (sqrt(v) + eps * sqrt(1 - beta2**t))``, which
-    equals the bias-corrected update of Algorithm 1 exactly in real arithmetic
-    and costs a dozen array operations per step.
+    equals the bias-corrected update of Algorithm 1 in real arithmetic. The
+    moments are stored pre-divided, ``m / (1 - beta1)`` and ``v / (1 - beta2)``,
+    so that their updates are ``beta * x + g`` and the constant factors fold
+    into ``alpha_t`` and epsilon: ten array operations per step.
 
     With ReLU networks, parameters of dead units get gradients that are exactly
     zero, and their moments decay geometrically (by ``beta1`` and ``beta2`` per
@@ -204,7 +213,7 @@ class Adam:
     smaller in magnitude than ``FLUSH_BELOW`` are set to exactly zero. Between
     flushes an entry decays by at most ``beta1**flush_every``, which keeps it
     far above the smallest normal float32 (1.2e-38); entries below 1e-30 change
-    a parameter by less than ``alpha * 1e-22`` per step, so flushing them does
+    a parameter by less than ``alpha * 1e-21`` per step, so flushing them does
     not change learning. It is plain arithmetic on the arrays: portable,
     deterministic, and independent of the CPU's flush-to-zero mode.
 
@@ -237,43 +246,52 @@ class Adam:
             raise ValueError(f"`eps` must be positive, got {eps!r}")
         if isinstance(flush_every, bool) or not isinstance(flush_every, int) or flush_every < 0:
             raise ValueError(f"`flush_every` must be a non-negative integer (0 = never), got {flush_every!r}")
-        if flush_every and beta1 ** flush_every * self.FLUSH_BELOW < 1e3 * np.finfo(dtype).tiny:
+        if flush_every and beta1**flush_every * self.FLUSH_BELOW < 1e3 * np.finfo(dtype).tiny:
             raise ValueError(f"`flush_every`={flush_every} is too long to keep moments normal at beta1={beta1}")
         self.step_size, self.beta1, self.beta2, self.eps = step_size, beta1, beta2, eps
         self.flush_every = flush_every
         self.t = 0
-        self.m = np.zeros(shape, dtype=dtype)
-        self.v = np.zeros(shape, dtype=dtype)
+        self._m = np.zeros(shape, dtype=dtype)  # m / (1 - beta1)
+        self._v = np.zeros(shape, dtype=dtype)  # v / (1 - beta2)
         self._tmp = np.empty(shape, dtype=dtype)
         self._tmp2 = np.empty(shape, dtype=dtype)
         self._small = np.empty(shape, dtype=bool)
+
+    @property
+    def moments(self) -> tuple[np.ndarray, np.ndarray]:
+        """The biased first and second moment estimates ``(m_t, v_t)`` of Algorithm 1 (copies)."""
+        return (1.0 - self.beta1) * self._m, (1.0 - self.beta2) * self._v
+
+    @property
+    def hot_arrays(self) -> tuple[np.ndarray, ...]:
+        """The stored moments and scratch arrays (for numerical health checks)."""
+        return self._m, self._v, self._tmp, self._tmp2
 
     def step(self, params: np.ndarray, grads: np.ndarray) -> None:
         """One Adam step: update ``params`` in place from ``grads`` (both ``(K, P)``)."""
         self.t += 1
         t, b1, b2 = self.t, self.beta1, self.beta2
-        m, v, tmp, tmp2 = self.m, self.v, self._tmp, self._tmp2
-        # m <- b1 m + (1 - b1) g, v <- b2 v + (1 - b2) g^2
+        m, v, tmp, tmp2 = self._m, self._v, self._tmp, self._tmp2
         np.multiply(m, b1, out=m)
-        np.multiply(grads, 1.0 - b1, out=tmp)
-        np.add(m, tmp, out=m)
+        np.add(m, grads, out=m)
         np.multiply(grads, grads, out=tmp)
-        np.multiply(tmp, 1.0 - b2, out=tmp)
         np.multiply(v, b2, out=v)
         np.add(v, tmp, out=v)
-        corr2 = np.sqrt(1.0 - b2**t)
+        # Python floats (not NumPy float64 scalars), so the array loops stay in the arrays' dtype.
+        corr2 = math.sqrt(1.0 - b2**t)
         alpha_t = self.step_size * corr2 / (1.0 - b1**t)
+        scale2 = math.sqrt(1.0 - b2)
         np.sqrt(v, out=tmp)
-        np.add(tmp, self.eps * corr2, out=tmp)
+        np.add(tmp, self.eps * corr2 / scale2, out=tmp)
         np.divide(m, tmp, out=tmp2)
-        np.multiply(tmp2, alpha_t, out=tmp2)
+        np.multiply(tmp2, alpha_t * (1.0 - b1) / scale2, out=tmp2)
         np.subtract(params, tmp2, out=params)
         if self.flush_every and t % self.flush_every == 0:
             self.flush()
 
     def flush(self) -> None:
         """Set moment entries below :attr:`FLUSH_BELOW` in magnitude to exactly zero."""
-        for arr in (self.m, self.v):
+        for arr in (self._m, self._v):
             np.abs(arr, out=self._tmp)
             np.less(self._tmp, self.FLUSH_BELOW, out=self._small)
             np.copyto(arr, 0, where=self._small)

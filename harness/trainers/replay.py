@@ -28,16 +28,23 @@ class ReplayMemory:
     obs_dim
         Length of a (flattened) observation.
     dtype
-        Floating dtype of observations and rewards.
+        Floating dtype of everything stored (actions are stored as exact small integers).
 
     Notes
     -----
-    ``terminated`` is stored as 1.0/0.0 and means the episode reached a
-    terminal state (no bootstrapping from ``next_obs``). A time-limit
-    truncation is stored as not terminated: the value of ``next_obs`` still
-    counts (common practice; Pardo et al. 2018, Time Limits in Reinforcement
-    Learning, ICML).
+    Storage is two arrays, so a minibatch is two gathers: ``pairs``
+    ``(K, capacity, 2, obs_dim + 1)`` holds ``[obs, 1]`` and ``[next_obs, 1]``
+    of each transition side by side (a gathered block is, viewed as rows, the
+    interleaved batch ``s_0, s'_0, s_1, s'_1, ...`` that one forward pass of
+    the online network can take), and ``scalars`` ``(K, capacity, 3)`` holds
+    action, reward and terminated. ``terminated`` is 1.0 when the episode
+    reached a terminal state (no bootstrapping from ``next_obs``); a time-limit
+    truncation is stored as 0.0: the value of ``next_obs`` still counts
+    (Pardo et al. 2018, Time Limits in Reinforcement Learning, ICML).
     """
+
+    #: Columns of :attr:`scalars`.
+    ACTION, REWARD, TERMINATED = 0, 1, 2
 
     def __init__(self, *, k: int, capacity: int, obs_dim: int, dtype: np.dtype | str):
         for name, value in (("k", k), ("capacity", capacity), ("obs_dim", obs_dim)):
@@ -45,58 +52,48 @@ class ReplayMemory:
                 raise ValueError(f"`{name}` must be a positive integer, got {value!r}")
         self.k, self.capacity, self.obs_dim = k, capacity, obs_dim
         dt = np.dtype(dtype)
-        self.obs = np.ones((k, capacity, obs_dim + 1), dtype=dt)
-        self.next_obs = np.ones((k, capacity, obs_dim + 1), dtype=dt)
-        self.action = np.zeros((k, capacity), dtype=np.intp)
-        self.reward = np.zeros((k, capacity), dtype=dt)
-        self.terminated = np.zeros((k, capacity), dtype=dt)
+        self.pairs = np.ones((k, capacity, 2, obs_dim + 1), dtype=dt)
+        self.scalars = np.zeros((k, capacity, 3), dtype=dt)
         self.size = 0
         self._pos = 0
         self._seed_offset = (np.arange(k, dtype=np.intp) * capacity)[:, None]
 
     def put(self, seed: int, obs: np.ndarray, action: int, reward: float, terminated: bool, next_obs: np.ndarray) -> None:
         """Write seed ``seed``'s transition of the current step (then call :meth:`advance` once for all seeds)."""
-        p = self._pos
-        self.obs[seed, p, :-1] = obs
-        self.next_obs[seed, p, :-1] = next_obs
-        self.action[seed, p] = action
-        self.reward[seed, p] = reward
-        self.terminated[seed, p] = terminated
+        row = self.pairs[seed, self._pos]
+        row[0, :-1] = obs
+        row[1, :-1] = next_obs
+        self.scalars[seed, self._pos] = (action, reward, terminated)
 
     def advance(self) -> None:
         """Close the current step: every seed has written its transition."""
         self._pos = (self._pos + 1) % self.capacity
         self.size = min(self.size + 1, self.capacity)
 
-    def sample_indices(self, rngs: Sequence[np.random.Generator], n: int, out: np.ndarray) -> np.ndarray:
-        """Draw ``n`` uniform indices per seed, each from that seed's Generator, into ``out`` ``(K, n)``.
+    def sample(self, rngs: Sequence[np.random.Generator], *, index: np.ndarray, pairs: np.ndarray,
+               scalars: np.ndarray) -> None:
+        """Draw a minibatch uniformly (with replacement) for each seed, from that seed's Generator.
 
-        Returns flat indices into the ``(K * capacity)`` rows, ready for :meth:`gather`.
+        Parameters
+        ----------
+        rngs
+            One Generator per seed; seed ``k`` draws ``n`` indices from ``rngs[k]``.
+        index
+            Scratch ``(K, n)`` integer buffer (``n`` is the minibatch size).
+        pairs, scalars
+            Contiguous output buffers ``(K, n, 2, obs_dim + 1)`` and ``(K, n, 3)``.
         """
         if self.size == 0:
             raise ValueError("cannot sample from an empty replay memory")
         if len(rngs) != self.k:
             raise ValueError(f"`rngs` must hold one Generator per seed ({self.k}), got {len(rngs)}")
+        if not (pairs.flags.c_contiguous and scalars.flags.c_contiguous):
+            raise ValueError("`pairs` and `scalars` must be C-contiguous output buffers")
+        n = index.shape[1]
         for k, rng in enumerate(rngs):
-            out[k] = rng.integers(0, self.size, size=n)
-        np.add(out, self._seed_offset, out=out)
-        return out
-
-    def gather(self, flat_index: np.ndarray, *, obs: np.ndarray, next_obs: np.ndarray,
-               action: np.ndarray, reward: np.ndarray, terminated: np.ndarray) -> None:
-        """Copy the sampled transitions into the given ``(K, n, ...)`` buffers."""
-        idx = flat_index.reshape(-1)
-        d = self.obs_dim + 1
-        _take_into(self.obs.reshape(-1, d), idx, obs)
-        _take_into(self.next_obs.reshape(-1, d), idx, next_obs)
-        _take_into(self.action.reshape(-1), idx, action)
-        _take_into(self.reward.reshape(-1), idx, reward)
-        _take_into(self.terminated.reshape(-1), idx, terminated)
-
-
-def _take_into(source: np.ndarray, idx: np.ndarray, out: np.ndarray) -> None:
-    """``out[...] = source[idx]`` reshaped to ``out``: straight into ``out`` when it is contiguous."""
-    if out.flags.c_contiguous:
-        np.take(source, idx, axis=0, out=out.reshape((-1, *source.shape[1:])), mode="clip")
-    else:
-        out[...] = np.take(source, idx, axis=0, mode="clip").reshape(out.shape)
+            index[k] = rng.integers(0, self.size, size=n)
+        np.add(index, self._seed_offset, out=index)
+        flat = index.reshape(-1)
+        np.take(self.pairs.reshape(-1, 2, self.obs_dim + 1), flat, axis=0, out=pairs.reshape(-1, 2, self.obs_dim + 1),
+                mode="clip")
+        np.take(self.scalars.reshape(-1, 3), flat, axis=0, out=scalars.reshape(-1, 3), mode="clip")
