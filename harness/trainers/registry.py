@@ -106,7 +106,7 @@ def _import(module_name: str, search_path: Path | None) -> types.ModuleType:
     try:
         return importlib.import_module(module_name)
     except ModuleNotFoundError as exc:
-        missing_self = exc.name is not None and module_name.startswith(exc.name)
+        missing_self = exc.name is not None and (module_name == exc.name or module_name.startswith(exc.name + "."))
         if search_path is None or not missing_self or str(search_path) in sys.path:
             raise
     sys.path.append(str(search_path))
