@@ -211,6 +211,10 @@ class GatePolicy:
 
     def with_overrides(self, **changes: Any) -> GatePolicy:
         """A copy with the given fields replaced (``None`` values are ignored): command-line overrides."""
+        names = [f.name for f in dataclasses.fields(self)]
+        for key in changes:
+            if key not in names:
+                raise ConfigError(f"unknown policy setting {key!r}.{did_you_mean(key, names)}", key=key)
         given = {k: v for k, v in changes.items() if v is not None}
         if "margin" in given:
             given.setdefault("margin_share", None)

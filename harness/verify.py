@@ -22,12 +22,14 @@ inconclusive.
 from __future__ import annotations
 
 import dataclasses
+import os
 from collections.abc import Mapping, Sequence
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from harness.baseline import Baseline
+from harness.baseline import Baseline, read_baseline
 from harness.compare import (
     CurveSet,
     Divergence,
@@ -37,11 +39,13 @@ from harness.compare import (
     random_policy_return,
     task_threshold,
 )
-from harness.errors import BaselineError
+from harness.errors import BaselineError, ResultsError
 from harness.policy import GatePolicy, PublishedReference
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
+    "baseline_for",
+    "rerun_and_verify",
     "ConfigChange",
     "DriftRow",
     "ExactCheck",
@@ -100,9 +104,13 @@ class Provenance:
     def reading(self) -> str:
         if self.baseline_hash is None:
             return "checked against published summary statistics: no configuration or versions to compare."
-        config = ("config hash equal" if self.same_config else
-                  f"config hash differs ({len(self.changes)} key{'s' if len(self.changes) != 1 else ''} changed: "
-                  + ", ".join(c.key for c in self.changes[:5]) + (", ..." if len(self.changes) > 5 else "") + ")")
+        if self.same_config:
+            config = "config hash equal"
+        elif not self.changes:
+            config = "config hash differs, but no resolved key differs (the hashes were taken of other resolutions)"
+        else:
+            config = (f"config hash differs ({len(self.changes)} key{'s' if len(self.changes) != 1 else ''} changed: "
+                      + ", ".join(c.key for c in self.changes[:5]) + (", ..." if len(self.changes) > 5 else "") + ")")
         versions = ("same installed versions" if not self.drift else
                     "version drift in " + ", ".join(d.name for d in self.drift))
         return f"{config}; {versions}."
@@ -168,7 +176,9 @@ class Verdict:
         """One line: the gate's outcome and the count of each verdict."""
         counts = {v: sum(c.verdict == v for c in self.checks) for v in ("equivalent", "better", "worse", "inconclusive")}
         listed = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
-        return f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {listed or 'no checks'}."
+        exact = {"identical": "; curves bitwise identical", "differs": "; curves not bitwise identical"}
+        return (f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {listed or 'no checks'}"
+                f"{exact.get(self.exact.status, '')}.")
 
     def explain(self) -> str:
         """A plain-text explanation: the summary, each layer's reading and the gate's reasons."""
@@ -314,6 +324,11 @@ def verify_manifest(
         Seeds failed or are missing: never verified silently on fewer seeds than asked.
     """
     policy = policy or manifest.check
+    if results.config_hash != manifest.config_hash:
+        raise ResultsError(
+            f"the results of {results.manifest!r} have config hash {results.config_hash}, but the manifest has "
+            f"{manifest.config_hash}: they are not a rerun of this manifest; run it (`rlharness verify` without --no-run)"
+        )
     if baseline is not None:
         if baseline.manifest != manifest.name:
             raise BaselineError(f"{baseline.path}: [manifest] is {baseline.manifest!r}, not {manifest.name!r}: "
@@ -329,3 +344,49 @@ def verify_manifest(
         floor = random_policy_return(manifest.task, manifest.evaluation)
     return verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
                        references=references, floor=floor, threshold=threshold)
+
+
+def baseline_for(manifest: Any, path: str | os.PathLike, *, required: bool = False) -> Baseline | None:
+    """Read and check the manifest's baseline at ``path`` before anything runs.
+
+    Returns ``None`` when there is no file at ``path`` but the manifest gives published
+    references (verification then uses those only), unless ``required``.
+
+    Raises
+    ------
+    BaselineError
+        Missing (and no references), edited, truncated, of another manifest, or another grid.
+    """
+    path = Path(path)
+    if not path.exists() and manifest.references and not required:
+        return None
+    baseline = read_baseline(path, manifest_name=manifest.name)
+    check_grid(manifest, baseline)
+    return baseline
+
+
+def rerun_and_verify(
+    manifest: Any,
+    *,
+    baseline_path: str | os.PathLike,
+    policy: GatePolicy | None = None,
+    results_dir: str | os.PathLike | None = None,
+    **run_options: Any,
+) -> Verdict:
+    """Check the baseline, rerun the manifest (reusing results that match) and verify it.
+
+    ``run_options`` go to :func:`harness.runner.run_manifest` (``workers``, ``use_cache``, ...).
+
+    Raises
+    ------
+    BaselineError
+        As :func:`baseline_for`; nothing is run then.
+    RunFailedError
+        If any run failed.
+    """
+    from harness.runner import run_manifest
+
+    baseline = baseline_for(manifest, baseline_path)
+    outcome = run_manifest(manifest, results_dir=results_dir, **run_options)
+    return verify_manifest(manifest, outcome.results, baseline=baseline, policy=policy,
+                           candidate_label=f"rerun of {manifest.name} ({outcome.folder})")

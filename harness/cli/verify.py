@@ -137,9 +137,9 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.baseline import default_baseline_path, read_baseline
+    from harness.baseline import default_baseline_path
     from harness.manifest import load_manifest
-    from harness.verify import check_grid, verify_manifest
+    from harness.verify import baseline_for, verify_manifest
 
     try:
         _check_report_paths(args)
@@ -149,19 +149,12 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)
     path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
-    baseline = None
-    if path.exists() or args.baseline or not manifest.references:
-        baseline = read_baseline(path, manifest_name=manifest.name)
-        check_grid(manifest, baseline)
-    else:
+    baseline = baseline_for(manifest, path, required=bool(args.baseline))
+    if baseline is None:
         console.print(f"no baseline at {path}: checking against the manifest's published references only",
                       highlight=False)
     try:
         results = obtain_results(args, manifest, console)
-    except RunFailedError as exc:
-        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
-        return ExitCode.RUNS_FAILED
-    try:
         verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy)
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)

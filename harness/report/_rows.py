@@ -9,9 +9,9 @@ from typing import Any
 from harness.policy import DEFAULT_MARGIN_SHARE
 from harness.verify import Verdict
 
-__all__ = ["CHECK_HEADER", "check_rows", "config_rows", "drift_rows", "num", "policy_line", "value"]
+__all__ = ["CHECK_HEADER", "check_notes", "check_rows", "config_rows", "drift_rows", "num", "policy_line", "value"]
 
-CHECK_HEADER = ("check", "baseline", "candidate", "difference", "interval", "margin", "p (Holm)", "verdict")
+CHECK_HEADER = ("check", "baseline", "candidate", "difference [interval]", "margin", "p (Holm)", "verdict")
 
 
 def num(x: float | None) -> str:
@@ -28,26 +28,40 @@ def value(v: Any) -> str:
     return "-" if v is None else json.dumps(v, separators=(",", ":"))
 
 
+def _side(mean: float, sd: float, n: int) -> str:
+    return f"{num(mean)} ± {num(sd)} ({n})"
+
+
 def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
-    """One row per statistical check, in :data:`CHECK_HEADER` order."""
-    rows = []
-    for c in verdict.checks:
-        label = c.verdict
-        if c.within_margin:
-            label += " (within margin)"
-        elif c.verdict == "inconclusive":
-            label += f" (detectable {num(c.detectable)}; ~{c.seeds_needed} seeds/side)"
-        rows.append((
+    """One row per statistical check, in :data:`CHECK_HEADER` order (sides are ``mean ± sd (seeds)``)."""
+    return [
+        (
             c.name,
-            f"{num(c.baseline_mean)} ± {num(c.baseline_sd)} (n={c.baseline_n})",
-            f"{num(c.candidate_mean)} ± {num(c.candidate_sd)} (n={c.candidate_n})",
-            f"{c.estimate:+.4g}",
-            f"{c.confidence_level:.0%} [{num(c.interval.low)}, {num(c.interval.high)}]",
+            _side(c.baseline_mean, c.baseline_sd, c.baseline_n),
+            _side(c.candidate_mean, c.candidate_sd, c.candidate_n),
+            f"{c.estimate:+.4g} [{num(c.interval.low)}, {num(c.interval.high)}]",
             f"±{num(c.margin)}",
             f"{c.pvalue:.3g}",
-            label,
-        ))
-    return rows
+            c.verdict + (" (within margin)" if c.within_margin else ""),
+        )
+        for c in verdict.checks
+    ]
+
+
+def check_notes(verdict: Verdict) -> list[str]:
+    """The lines under the checks table: what the interval is, and what would settle inconclusive checks."""
+    if not verdict.checks:
+        return []
+    level = verdict.checks[0].confidence_level
+    notes = [f"difference = candidate - baseline with its {level:.0%} interval; p: Holm-adjusted one-sided p-value "
+             "(of 'worse', or of 'better' for a better verdict)."]
+    for c in verdict.checks:
+        if c.verdict == "inconclusive":
+            seeds = (f"about {c.seeds_needed} seeds per side would detect a difference as large as the margin"
+                     if c.seeds_needed is not None else "no practical number of seeds would settle it")
+            notes.append(f"{c.name}: inconclusive; differences of about {num(c.detectable)} are detectable with these "
+                         f"seeds (power {verdict.policy.power:g}); {seeds}.")
+    return notes
 
 
 def config_rows(verdict: Verdict) -> list[tuple[str, str, str]]:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from harness.report._rows import CHECK_HEADER, check_rows, config_rows, drift_rows, policy_line
+from harness.report._rows import CHECK_HEADER, check_notes, check_rows, config_rows, drift_rows, policy_line
 from harness.verify import WHAT_A_PASS_MEANS, Verdict
 
 __all__ = ["render_markdown"]
@@ -43,6 +43,7 @@ def render_markdown(verdict: Verdict) -> str:
                 f"- candidate returns: `{list(v.exact.candidate_returns)}`", ""]
     rows = [(*row[:-1], f"**{row[-1]}**") for row in check_rows(v)]
     out += ["### 3. Statistical checks", ""] + _table(CHECK_HEADER, rows)
+    out += [f"- {note}" for note in check_notes(v)] + [""]
     out += ["### 4. Where the curves part", ""]
     out += [v.divergence.reading if v.divergence is not None else "Not looked for.", ""]
     out += ["### Gate", "", f"Policy: {policy_line(v)}.", ""]

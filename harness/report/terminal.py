@@ -6,7 +6,7 @@ from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from harness.report._rows import CHECK_HEADER, check_rows, config_rows, drift_rows, policy_line
+from harness.report._rows import CHECK_HEADER, check_notes, check_rows, config_rows, drift_rows, policy_line
 from harness.verify import WHAT_A_PASS_MEANS, Verdict
 
 __all__ = ["VerdictReport"]
@@ -53,12 +53,13 @@ class VerdictReport:
         if v.exact.status == "differs":
             parts.append(Text(f"   baseline returns  {list(v.exact.baseline_returns)}\n"
                               f"   candidate returns {list(v.exact.candidate_returns)}"))
-        table = Table(title="3. statistical checks", title_justify="left", show_edge=False)
+        table = Table(title="3. statistical checks", title_justify="left", show_edge=False, pad_edge=False)
         for name in CHECK_HEADER:
-            table.add_column(name, overflow="fold")
+            table.add_column(name, overflow="fold", no_wrap=name in ("check", "margin", "p (Holm)"))
         for check, row in zip(v.checks, check_rows(v), strict=True):
             table.add_row(*row[:-1], Text(row[-1], style=_STYLE[check.verdict]))
         parts.append(table)
+        parts.extend(Text("   " + note, style="dim") for note in check_notes(v))
         if v.divergence is not None:
             parts.append(Text("4. where the curves part: " + v.divergence.reading))
         else:
