@@ -27,7 +27,7 @@ from typing import Any, TypeVar
 
 from harness.errors import ConfigError, ManifestError, did_you_mean
 
-__all__ = ["bare_message", "check_json_value", "resolve", "to_json"]
+__all__ = ["check_json_value", "resolve", "to_json"]
 
 T = TypeVar("T")
 
@@ -51,7 +51,7 @@ def _describe(value: object) -> str:
     return f"{type(value).__name__} ({value!r})"
 
 
-def bare_message(exc: ManifestError) -> str:
+def _bare_message(exc: ManifestError) -> str:
     """The message of ``exc`` without the ``path [key]: `` prefix ``ManifestError`` adds."""
     text = str(exc)
     where = " ".join(p for p in (exc.path and str(exc.path), exc.key and f"[{exc.key}]") if p)
@@ -197,7 +197,7 @@ def resolve(schema: type[T], data: Any, *, path: str | None = None, key: str = "
         return schema(**values)
     except ConfigError as exc:
         inner = exc.key if exc.key is not None else ""
-        raise ConfigError(bare_message(exc), path=path, key=_join(key, inner) if inner else (key or None)) from None
+        raise ConfigError(_bare_message(exc), path=path, key=_join(key, inner) if inner else (key or None)) from None
     except (TypeError, ValueError) as exc:
         raise ConfigError(str(exc), path=path, key=key or None) from None
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import importlib
+import inspect
 import os
 import re
 import tomllib
@@ -28,9 +29,10 @@ from pathlib import Path
 from typing import Any
 
 import gymnasium as gym
+from gymnasium.envs.registration import load_env_creator
 
 from harness import config
-from harness.errors import ConfigError, ManifestError
+from harness.errors import ConfigError, ManifestError, did_you_mean
 from harness.pins import Pins
 from harness.policy import GatePolicy, PublishedReference
 from harness.seeding import RunSeed, plan_seeds
@@ -94,7 +96,7 @@ class _SeedsTable:
     root: int | None = None
     values: tuple[int, ...] | None = None
 
-    def planned(self) -> tuple[RunSeed, ...]:
+    def __post_init__(self) -> None:
         if (self.values is None) == (self.count is None):
             raise ConfigError(
                 "give either `values = [1, 2, 3]` or `count = N` with `root = ENTROPY`, not both or neither",
@@ -103,10 +105,13 @@ class _SeedsTable:
         if self.values is not None and self.root is not None:
             raise ConfigError("`root` goes with `count`; remove it or replace `values` by `count`", key="root")
         try:
-            return plan_seeds(seeds=self.values, count=self.count, root=self.root)
+            self.planned()
         except ValueError as exc:
             key = "values" if self.values is not None else ("root" if "root" in str(exc) else "count")
             raise ConfigError(f"{exc}; fix the seed list", key=key) from None
+
+    def planned(self) -> tuple[RunSeed, ...]:
+        return plan_seeds(seeds=self.values, count=self.count, root=self.root)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -207,7 +212,7 @@ def _resolved_config(task, trainer, settings, budget, evaluation, seeds) -> dict
     }
 
 
-def _registered_step_limit(task: _TaskTable, *, path: str | None) -> int | None:
+def _registered_task(task: _TaskTable, *, path: str | None) -> int | None:
     """Check the id against gymnasium's registry and return its registered episode step limit."""
     env_id = task.id
     if ":" in env_id:
@@ -229,7 +234,40 @@ def _registered_step_limit(task: _TaskTable, *, path: str | None) -> int | None:
             "Use a registered id (`python -c \"import gymnasium; gymnasium.pprint_registry()\"` lists them).",
             path=path, key="task.id",
         ) from None
+    _check_options(spec, task.options, path=path)
     return spec.max_episode_steps
+
+
+#: ``gymnasium.make`` arguments that the harness itself sets (see ``harness.trainers.envs.make_env``).
+_RESERVED_OPTIONS = {"max_episode_steps": "use `episode_step_limit` in [task]",
+                     "disable_env_checker": "the harness sets it"}
+
+
+def _check_options(spec: gym.envs.registration.EnvSpec, options: Mapping[str, Any], *, path: str | None) -> None:
+    """Reject ``[task] options`` that the task's constructor does not take (checked by signature, not built)."""
+    for name, why in _RESERVED_OPTIONS.items():
+        if name in options:
+            raise ManifestError(f"{name!r} cannot be an option: {why}", path=path, key=f"task.options.{name}")
+    try:
+        creator = load_env_creator(spec.entry_point) if isinstance(spec.entry_point, str) else spec.entry_point
+    except (ImportError, gym.error.Error) as exc:
+        raise ManifestError(
+            f"cannot load the environment of {spec.id!r} ({exc}); install what it needs",
+            path=path, key="task.id",
+        ) from None
+    try:
+        parameters = inspect.signature(creator).parameters
+    except (TypeError, ValueError):  # builtins and some C extensions have no signature: cannot check
+        return
+    if any(p.kind is inspect.Parameter.VAR_KEYWORD for p in parameters.values()):
+        return
+    accepted = {n for n, p in parameters.items() if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)}
+    for name in options:
+        if name not in accepted:
+            raise ManifestError(
+                f"{spec.id!r} takes no option {name!r}.{did_you_mean(name, accepted)}",
+                path=path, key=f"task.options.{name}",
+            )
 
 
 def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manifest:
@@ -250,6 +288,8 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         types, out-of-range values, an unknown gymnasium id or trainer, an evaluation interval
         larger than the budget, duplicate seeds.
     """
+    if not isinstance(text, str):
+        raise TypeError(f"`text` must be the manifest's TOML text (a str), got {type(text).__name__}")
     where = None if path is None else str(path)
     search_path = None if path is None else Path(path).resolve().parent
     try:
@@ -259,7 +299,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
     table = config.resolve(_ManifestFile, data, path=where)
     task = table.task
     step_limit = task.episode_step_limit
-    registered = _registered_step_limit(task, path=where)
+    registered = _registered_task(task, path=where)
     if step_limit is None:
         step_limit = registered
     if step_limit is None:
@@ -284,10 +324,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         seed=table.evaluation.episode_seed,
         epsilon=table.evaluation.epsilon,
     )
-    try:
-        seeds = table.seeds.planned()
-    except ConfigError as exc:
-        raise ConfigError(config.bare_message(exc), path=where, key=f"seeds.{exc.key}" if exc.key else "seeds") from None
+    seeds = table.seeds.planned()
     check = config.resolve(GatePolicy, table.check, path=where, key="check")
     references = tuple(
         config.resolve(PublishedReference, ref, path=where, key=f"reference[{i}]") for i, ref in enumerate(table.reference)
