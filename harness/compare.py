@@ -41,167 +41,18 @@ the whole curve.
 from __future__ import annotations
 
 import dataclasses
-import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
-from harness.baseline import Baseline, SeedCurve
-from harness.errors import BaselineError, ResultsError, RunFailedError
+from harness.curveset import CurveSet
+from harness.errors import BaselineError
 from harness.policy import GatePolicy, PublishedReference
-from harness.spec import EvaluationPlan, TaskSpec
 
-__all__ = [
-    "VERDICTS",
-    "CurveSet",
-    "Divergence",
-    "MetricCheck",
-    "StatisticalComparison",
-    "compare_sets",
-    "random_policy_return",
-    "task_threshold",
-]
+__all__ = ["VERDICTS", "Divergence", "MetricCheck", "StatisticalComparison", "compare_sets"]
 
 VERDICTS = ("equivalent", "worse", "better", "inconclusive")
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
-class CurveSet:
-    """Per-seed curves with where they came from: a baseline or a result set.
-
-    Attributes
-    ----------
-    label
-        Where it came from, for reports (``"baseline baselines/x.json"``).
-    manifest, config_hash, config
-        The manifest's name, config hash and resolved configuration.
-    versions
-        Installed versions the curves were produced with.
-    runs
-        Per-seed curves.
-    budget
-        Training budget in environment steps.
-    """
-
-    label: str
-    manifest: str
-    config_hash: str
-    config: Mapping[str, Any]
-    versions: Mapping[str, str]
-    runs: tuple[SeedCurve, ...]
-    budget: int
-
-    @classmethod
-    def from_baseline(cls, baseline: Baseline) -> CurveSet:
-        where = str(baseline.path) if baseline.path is not None else baseline.manifest
-        return cls(
-            label=f"baseline {where} (recorded {baseline.recorded})",
-            manifest=baseline.manifest,
-            config_hash=baseline.config_hash,
-            config=baseline.config,
-            versions=baseline.versions,
-            runs=baseline.runs,
-            budget=int(baseline.runs[0].curve.steps[-1]),  # the grid always ends at the budget
-        )
-
-    @classmethod
-    def from_results(cls, results: Any, *, label: str, config: Mapping[str, Any] | None = None,
-                     expected: int | None = None) -> CurveSet:
-        """From a ``harness.store.ResultSet``; every seed must have completed.
-
-        Parameters
-        ----------
-        results
-            The result set.
-        label
-            Where it came from, for reports.
-        config
-            The resolved configuration (``Manifest.resolved_config()``); by default it is
-            rebuilt from the first run's spec.
-        expected
-            Number of seeds the manifest asks for; fewer completed seeds is an error.
-
-        Raises
-        ------
-        RunFailedError
-            If any seed failed (never verified silently on fewer seeds).
-        ResultsError
-            If fewer seeds than ``expected`` have results, or there are none.
-        """
-        failed = results.failed()
-        if failed:
-            lines = "; ".join(f"seed {r.spec.seed.label}: {(r.failure or '').strip().splitlines()[-1:]}" for r in failed)
-            raise RunFailedError(
-                f"{label}: {len(failed)} of {len(results.records)} seeds failed, so there is nothing sound to "
-                f"verify (never verified on fewer seeds than asked): {lines}"
-            )
-        done = results.completed()
-        if not done or (expected is not None and len(done) < expected):
-            raise ResultsError(
-                f"{label}: {len(done)} completed seeds, but the manifest asks for {expected}; run the missing "
-                "seeds first (`rlharness run`); verification never uses fewer seeds than asked"
-            )
-        first = done[0].spec
-        versions = {k: v for r in done for k, v in r.versions.items()}
-        return cls(
-            label=label,
-            manifest=results.manifest,
-            config_hash=results.config_hash,
-            config=config if config is not None else _config_of_specs([r.spec for r in done]),
-            versions=versions,
-            runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in done),
-            budget=first.budget,
-        )
-
-    @property
-    def steps(self) -> tuple[int, ...]:
-        """The checkpoint grid shared by every seed."""
-        grids = {tuple(int(s) for s in r.curve.steps) for r in self.runs}
-        if len(grids) != 1:
-            raise ResultsError(f"{self.label}: seeds have different checkpoint grids: {sorted(grids)}")
-        return next(iter(grids))
-
-    def curve_matrix(self) -> np.ndarray:
-        """Mean evaluation return per seed and checkpoint, shape ``(n_seeds, n_checkpoints)``."""
-        return np.stack([r.curve.means for r in self.runs])
-
-
-def _config_of_specs(specs: Sequence[Any]) -> dict:
-    first = specs[0].to_json()
-    return {
-        "task": first["task"],
-        "trainer": first["trainer"],
-        "settings": first["config"],
-        "budget": first["budget"],
-        "evaluation": first["evaluation"],
-        "seeds": [s.seed.to_json() for s in specs],
-    }
-
-
-def task_threshold(task: TaskSpec) -> float | None:
-    """The reward threshold registered with gymnasium for the task, or ``None``."""
-    import gymnasium
-
-    value = gymnasium.spec(task.id).reward_threshold
-    return None if value is None else float(value)
-
-
-def random_policy_return(task: TaskSpec, evaluation: EvaluationPlan) -> float:
-    """Mean return of a uniformly random policy on the evaluation episodes.
-
-    Deterministic: the episode seeds are the evaluation's, and the random actions
-    come from a Generator seeded with the evaluation seed.
-    """
-    from harness.trainers.envs import evaluate_policy, make_env
-
-    env = make_env(task)
-    try:
-        rng = np.random.default_rng(np.random.SeedSequence(evaluation.seed, spawn_key=(0x52414E44,)))
-        returns = evaluate_policy(lambda obs: 0, env, evaluation.episode_seeds(), epsilon=1.0, rng=rng)
-    finally:
-        env.close()
-    return math.fsum(returns) / len(returns)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

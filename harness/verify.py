@@ -30,15 +30,8 @@ from typing import Any
 import numpy as np
 
 from harness.baseline import Baseline, read_baseline
-from harness.compare import (
-    CurveSet,
-    Divergence,
-    MetricCheck,
-    StatisticalComparison,
-    compare_sets,
-    random_policy_return,
-    task_threshold,
-)
+from harness.compare import Divergence, MetricCheck, StatisticalComparison, compare_sets
+from harness.curveset import CurveSet, random_policy_return, task_threshold
 from harness.errors import BaselineError, ResultsError
 from harness.policy import GatePolicy, PublishedReference
 

@@ -22,7 +22,7 @@ __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.compare import CurveSet, random_policy_return, task_threshold
+    from harness.curveset import CurveSet, random_policy_return, task_threshold
     from harness.policy import GatePolicy
     from harness.store import read_results
     from harness.verify import verify_sets

@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 from scipy import stats as _st
 
-from harness.compare import CurveSet
+from harness.curveset import CurveSet
 from harness.errors import HarnessError
 
 __all__ = ["INSTALL_HINT", "PlotUnavailableError", "curve_band", "plot_curves"]
