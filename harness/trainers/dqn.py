@@ -139,8 +139,7 @@ class DQNSettings:
         for name, choices in (("target", _TARGETS), ("loss", _LOSSES), ("dtype", _DTYPES)):
             value = getattr(self, name)
             if value not in choices:
-                raise ConfigError(f"must be one of {choices}, got {value!r}.{did_you_mean(str(value), choices)}",
-                                  key=name)
+                raise ConfigError(f"unknown value {value!r}.{did_you_mean(str(value), choices)}", key=name)
 
     @classmethod
     def from_config(cls, config: Mapping[str, Any]) -> DQNSettings:

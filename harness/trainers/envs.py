@@ -98,6 +98,11 @@ class LeanEnv:
         self._env, self._limit, self._elapsed = env, limit, 0
         self._flatten = len(self.observation_space.shape or ()) != 1
 
+    @property
+    def limit(self) -> int | None:
+        """The episode step limit counted here (None when the wrapped stack is stepped as is)."""
+        return self._limit
+
     def reset(self, seed: int | None = None) -> np.ndarray:
         """Start an episode (seeding the environment's generator when ``seed`` is given)."""
         self._elapsed = 0
