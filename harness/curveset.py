@@ -19,7 +19,13 @@ from harness.baseline import Baseline, SeedCurve
 from harness.errors import ResultsError, RunFailedError
 from harness.spec import EvaluationPlan, TaskSpec
 
-__all__ = ["CurveSet", "random_policy_return", "task_threshold"]
+__all__ = ["CurveSet", "last_line", "random_policy_return", "task_threshold"]
+
+
+def last_line(text: str | None) -> str:
+    """The last line of a failure reason (the exception message of a traceback)."""
+    lines = (text or "").strip().splitlines()
+    return lines[-1] if lines else "no reason given"
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -87,7 +93,7 @@ class CurveSet:
         """
         failed = results.failed()
         if failed:
-            lines = "; ".join(f"seed {r.spec.seed.label}: {(r.failure or '').strip().splitlines()[-1:]}" for r in failed)
+            lines = "; ".join(f"seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
             raise RunFailedError(
                 f"{label}: {len(failed)} of {len(results.records)} seeds failed, so there is nothing sound to "
                 f"verify (never verified on fewer seeds than asked): {lines}"

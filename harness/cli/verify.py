@@ -48,6 +48,7 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
     RunFailedError
         If any run failed (the message lists the seeds and reasons).
     """
+    from harness.curveset import last_line
     from harness.store import read_results
 
     default = Path("results") / manifest.name
@@ -65,7 +66,7 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
                            scheduler=args.scheduler, use_cache=use_cache)
     failed = outcome.results.failed()
     if failed:
-        lines = "\n".join(f"  seed {r.spec.seed.label}: {(r.failure or '').strip().splitlines()[-1]}" for r in failed)
+        lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
         raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
     sources = {s: sum(1 for v in outcome.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
     console.print("runs: " + ", ".join(f"{n} {s}" for s, n in sources.items() if n), highlight=False)

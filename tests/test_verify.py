@@ -1,0 +1,253 @@
+"""Verification logic on hand-made curve sets, checked against published and recomputed values."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import gymnasium
+import numpy as np
+import pytest
+from scipy import stats as st
+
+from harness.baseline import SeedCurve
+from harness.curves import Checkpoint, LearningCurve
+from harness.curveset import CurveSet, random_policy_return, task_threshold
+from harness.errors import BaselineError, ResultsError, RunFailedError
+from harness.policy import GatePolicy, PublishedReference
+from harness.seeding import plan_seeds
+from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.store import ResultSet, RunRecord
+from harness.verify import decide, verify_sets
+
+# NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.3, AUTO83B data (published raw data;
+# see /work/shared/CHECK-VALUES.md): miles per gallon of US and Japanese cars.
+US = [18, 15, 18, 16, 17, 15, 14, 14, 14, 15, 15, 14, 15, 14, 22, 18, 21, 21, 10, 10, 11, 9, 28, 25, 19, 16, 17, 19,
+      18, 14, 14, 14, 14, 12, 13, 13, 18, 22, 19, 18, 23, 26, 25, 20, 21, 13, 14, 15, 14, 17, 11, 13, 12, 13, 15, 13,
+      13, 14, 22, 28, 13, 14, 13, 14, 15, 12, 13, 13, 14, 13, 12, 13, 18, 16, 18, 18, 23, 11, 12, 13, 12, 18, 21, 19,
+      21, 15, 16, 15, 11, 20, 21, 19, 15, 26, 25, 16, 16, 18, 16, 13, 14, 14, 14, 28, 19, 18, 15, 15, 16, 15, 16, 14,
+      17, 16, 15, 18, 21, 20, 13, 23, 20, 23, 18, 19, 25, 26, 18, 16, 16, 15, 22, 22, 24, 23, 29, 25, 20, 18, 19, 18,
+      27, 13, 17, 13, 13, 13, 30, 26, 18, 17, 16, 15, 18, 21, 19, 19, 16, 16, 16, 16, 25, 26, 31, 34, 36, 20, 19, 20,
+      19, 21, 20, 25, 21, 19, 21, 21, 19, 18, 19, 18, 18, 18, 30, 31, 23, 24, 22, 20, 22, 20, 21, 17, 18, 17, 18, 17,
+      16, 19, 19, 36, 27, 23, 24, 34, 35, 28, 29, 27, 34, 32, 28, 26, 24, 19, 28, 24, 27, 27, 26, 24, 30, 39, 35, 34,
+      30, 22, 27, 20, 18, 28, 27, 34, 31, 29, 27, 24, 23, 38, 36, 25, 38, 26, 22, 36, 27, 27, 32, 28, 31]
+JP = [24, 27, 27, 25, 31, 35, 24, 19, 28, 23, 27, 20, 22, 18, 20, 31, 32, 31, 32, 24, 26, 29, 24, 24, 33, 33, 32, 28,
+      19, 32, 34, 26, 30, 22, 22, 33, 39, 36, 28, 27, 21, 24, 30, 34, 32, 38, 37, 30, 31, 37, 32, 47, 41, 45, 34, 33,
+      24, 32, 39, 35, 32, 37, 38, 34, 34, 32, 33, 32, 25, 24, 37, 31, 36, 36, 34, 38, 32, 38, 32]
+NIST_MEAN_US, NIST_MEAN_JP, NIST_SD_JP = 20.14458, 30.48101, 6.10771  # published summary
+WELCH_T, WELCH_DF, WELCH_P_TWO_SIDED = -12.946273, 136.87498, 1.5709e-25  # recomputed (CHECK-VALUES.md)
+
+POLICY = GatePolicy(metrics=("final",), margin=1.0)
+
+
+def curve_set(matrix, *, label="set", config_hash="sha256:same", config=None, versions=None, every=100):
+    """A CurveSet whose seed ``i`` has mean evaluation return ``matrix[i][j]`` at checkpoint ``j``."""
+    matrix = np.asarray(matrix, dtype=float)
+    seeds = plan_seeds(count=matrix.shape[0], root=1)
+    runs = tuple(
+        SeedCurve(seed, LearningCurve(tuple(Checkpoint(j * every, (float(v),)) for j, v in enumerate(row))))
+        for seed, row in zip(seeds, matrix, strict=True)
+    )
+    return CurveSet(label, "toy", config_hash, config or {"settings": {"step_size": 0.1}},
+                    versions or {"numpy": "2.1.0"}, runs, every * (matrix.shape[1] - 1))
+
+
+def flat(values, checkpoints=2):
+    """Curves that sit at one value per seed, so that final and auc both equal it."""
+    return np.repeat(np.asarray(values, dtype=float)[:, None], checkpoints, axis=1)
+
+
+def test_welch_through_verify_matches_nist_auto83b():
+    verdict = verify_sets(curve_set(flat(JP)), curve_set(flat(US)), POLICY)
+    (check,) = verdict.checks
+    assert check.estimate == pytest.approx(NIST_MEAN_US - NIST_MEAN_JP, rel=1e-5)
+    assert check.baseline_n == 79 and check.candidate_n == 249
+    se = check.estimate / WELCH_T
+    half = st.t.ppf(0.95, WELCH_DF) * se  # the 90% (1 - 2 alpha) interval
+    assert (check.interval.low, check.interval.high) == pytest.approx((check.estimate - half, check.estimate + half), rel=1e-5)
+    assert check.verdict == "worse"
+    assert check.pvalue == pytest.approx(WELCH_P_TWO_SIDED / 2, rel=1e-3)  # one-sided, one check: Holm leaves it
+    assert not verdict.passed and verdict.gate.failing == ("final",)
+
+
+def test_published_reference_uses_welch_from_summary_statistics():
+    ref = PublishedReference(metric="final", mean=NIST_MEAN_JP, sd=NIST_SD_JP, seeds=79,
+                             source="NIST/SEMATECH e-Handbook 1.3.5.3 (Japanese cars)")
+    verdict = verify_sets(None, curve_set(flat(US)), POLICY, references=(ref,))
+    (check,) = verdict.checks
+    assert check.name == "final vs NIST/SEMATECH e-Handbook 1.3.5.3 (Japanese cars)"
+    assert check.estimate == pytest.approx(NIST_MEAN_US - NIST_MEAN_JP, rel=1e-5)
+    assert check.pvalue == pytest.approx(WELCH_P_TWO_SIDED / 2, rel=1e-3)
+    assert check.verdict == "worse" and check.baseline_values is None
+    assert verdict.exact.status == "skipped" and "published summary statistics" in verdict.exact.reason
+    assert verdict.divergence is None
+
+
+def test_published_reference_given_as_standard_error():
+    se = NIST_SD_JP / np.sqrt(79)
+    ref = PublishedReference(metric="final", mean=NIST_MEAN_JP, se=se, seeds=79, source="NIST")
+    (check,) = verify_sets(None, curve_set(flat(US)), POLICY, references=(ref,)).checks
+    assert check.pvalue == pytest.approx(WELCH_P_TWO_SIDED / 2, rel=1e-3)
+
+
+def test_holm_is_applied_across_checks():
+    # Two checks with the same raw p-value p: Holm (1979) step-down adjusts both to 2p.
+    refs = tuple(PublishedReference(metric=m, mean=NIST_MEAN_JP, sd=NIST_SD_JP, seeds=79, source="NIST")
+                 for m in ("final", "auc"))
+    checks = verify_sets(None, curve_set(flat(US)), POLICY, references=refs).checks
+    assert [c.pvalue for c in checks] == pytest.approx([WELCH_P_TWO_SIDED, WELCH_P_TWO_SIDED], rel=1e-3)
+
+
+def _pair(shift, n=12, seed=3):
+    rng = np.random.default_rng(np.random.SeedSequence(seed))
+    base = rng.normal(100.0, 4.0, size=n)
+    cand = rng.normal(100.0, 4.0, size=n) + shift
+    return curve_set(flat(base)), curve_set(flat(cand))
+
+
+def test_equivalence_iff_interval_inside_margin():
+    # Schuirmann (1987): the two one-sided tests at alpha reject exactly when the (1 - 2 alpha)
+    # interval lies inside the margin.
+    base, cand = _pair(0.0)
+    (probe,) = verify_sets(base, cand, POLICY).checks
+    reach = max(abs(probe.interval.low), abs(probe.interval.high))
+    inside = verify_sets(base, cand, dataclasses.replace(POLICY, margin=reach * 1.001)).checks[0]
+    outside = verify_sets(base, cand, dataclasses.replace(POLICY, margin=reach * 0.999)).checks[0]
+    assert inside.verdict == "equivalent"
+    assert outside.verdict == "inconclusive"
+    assert outside.detectable > 0 and outside.seeds_needed > 12
+    assert outside.pvalue_equivalence > 0.05 > inside.pvalue_equivalence
+
+
+def test_inconclusive_reports_detectable_difference_and_seeds():
+    base, cand = _pair(0.0, n=4)
+    (check,) = verify_sets(base, cand, dataclasses.replace(POLICY, margin=0.5)).checks
+    assert check.verdict == "inconclusive"
+    assert "seeds per side would detect one as large as the margin" in check.reading
+    # More seeds are needed for a smaller effect: the margin is far below the detectable difference.
+    assert check.detectable > check.margin and check.seeds_needed > 4
+
+
+def test_gate_policies():
+    base, cand = _pair(-3.0, n=40)
+    worse = verify_sets(base, cand, dataclasses.replace(POLICY, margin=10.0))
+    (check,) = worse.checks
+    assert check.verdict == "worse" and check.within_margin
+    assert not worse.passed
+    lenient = decide(worse.checks, dataclasses.replace(POLICY, margin=10.0, ignore_small=True))
+    assert lenient.passed and "within the margin, ignored by policy: final" in lenient.reasons[0]
+    base, cand = _pair(0.0, n=4)
+    unsure = verify_sets(base, cand, dataclasses.replace(POLICY, margin=0.5))
+    assert unsure.checks[0].verdict == "inconclusive" and unsure.passed
+    strict = decide(unsure.checks, dataclasses.replace(POLICY, margin=0.5, strict=True))
+    assert not strict.passed and strict.failing == ("final",)
+
+
+def test_better_is_not_a_failure():
+    base, cand = _pair(+20.0)
+    verdict = verify_sets(base, cand, POLICY)
+    assert verdict.checks[0].verdict == "better" and verdict.passed
+
+
+def test_exact_check_names_first_differing_seed_and_checkpoint():
+    matrix = np.arange(12, dtype=float).reshape(4, 3)
+    same = verify_sets(curve_set(matrix), curve_set(matrix.copy()), POLICY)
+    assert same.exact.status == "identical"
+    changed = matrix.copy()
+    changed[2, 1] = np.nextafter(changed[2, 1], np.inf)  # one ulp: bitwise, not approximately
+    changed[3, 0] += 1.0
+    differs = verify_sets(curve_set(matrix), curve_set(changed), POLICY).exact
+    assert (differs.status, differs.seed, differs.step) == ("differs", "1/2", 100)
+    assert differs.baseline_returns == (7.0,) and differs.candidate_returns != (7.0,)
+
+
+def test_version_drift_skips_exact_check_but_not_statistics():
+    matrix = np.arange(12, dtype=float).reshape(4, 3)
+    verdict = verify_sets(curve_set(matrix), curve_set(matrix, versions={"numpy": "2.2.0"}), POLICY)
+    assert verdict.exact.status == "skipped"
+    assert verdict.exact.reason.startswith("installed versions differ (numpy 2.1.0 -> 2.2.0)")
+    assert [(d.name, d.baseline, d.candidate) for d in verdict.provenance.drift] == [("numpy", "2.1.0", "2.2.0")]
+    assert len(verdict.checks) == 1
+
+
+def test_config_change_names_the_key():
+    old = {"settings": {"step_size": 0.1, "discount": 0.99}, "budget": 200}
+    new = {"settings": {"step_size": 0.3, "discount": 0.99}, "budget": 200}
+    matrix = np.arange(12, dtype=float).reshape(4, 3)
+    verdict = verify_sets(curve_set(matrix, config=old), curve_set(matrix, config=new, config_hash="sha256:other"), POLICY)
+    assert [(c.key, c.baseline, c.candidate) for c in verdict.provenance.changes] == [("settings.step_size", 0.1, 0.3)]
+    assert "1 key changed: settings.step_size" in verdict.provenance.reading
+    assert verdict.exact.status == "skipped"
+
+
+def test_divergence_finds_where_the_curves_part():
+    rng = np.random.default_rng(np.random.SeedSequence(11))
+    base = rng.normal(0.0, 1.0, size=(8, 6)).cumsum(axis=1) + np.arange(6) * 10
+    cand = base + rng.normal(0.0, 0.5, size=(8, 6))
+    cand[:, 3:] -= 40.0
+    verdict = verify_sets(curve_set(base), curve_set(cand), POLICY)
+    assert (verdict.divergence.first_step, verdict.divergence.last_step) == (300, 500)
+    assert verdict.divergence.pvalue <= 0.05
+    calm = verify_sets(curve_set(base), curve_set(base + rng.normal(0.0, 0.5, size=(8, 6))), POLICY)
+    assert not calm.divergence.found
+
+
+def test_different_checkpoint_grids_are_refused():
+    with pytest.raises(BaselineError, match=r"different checkpoint grids: .* has steps \[0, 100, 200\]"):
+        verify_sets(curve_set(flat([1, 2, 3], 3)), curve_set(flat([1, 2, 3], 3), every=50), POLICY)
+
+
+def test_nothing_to_compare_against():
+    with pytest.raises(BaselineError, match=r"no baseline and no \[\[reference\]\]"):
+        verify_sets(None, curve_set(flat([1, 2, 3])), POLICY)
+
+
+def test_steps_to_threshold_uses_censored_comparison():
+    # Baseline seeds reach 50 at step 100; candidate seeds reach it at step 300 or never (censored).
+    base = [[0, 60, 70, 80, 90]] * 5
+    cand = [[0, 10, 20, 60, 70]] * 3 + [[0, 10, 20, 30, 40]] * 2
+    policy = GatePolicy(metrics=("steps-to-threshold",), threshold=50.0, margin_share=0.1)
+    (check,) = verify_sets(curve_set(base), curve_set(cand), policy).checks
+    assert check.verdict == "worse" and "Gehan" in check.method
+    assert check.margin == pytest.approx(0.1 * 400)  # share of the budget
+    assert check.pvalue_equivalence == 1.0  # equivalence is never claimed with censored seeds
+
+
+def _records(n, *, fail=()):
+    seeds = plan_seeds(count=n, root=2)
+    out = []
+    for i, s in enumerate(seeds):
+        spec = RunSpec("toy", TaskSpec("FrozenLake-v1"), "tabular-q", {}, 100, EvaluationPlan(interval=50, episodes=1),
+                       s, i, "sha256:h")
+        if i in fail:
+            out.append(RunRecord(spec, "failed", None, "Traceback ...\nRuntimeError: boom", {}))
+        else:
+            curve = LearningCurve((Checkpoint(0, (0.0,)), Checkpoint(50, (0.5,)), Checkpoint(100, (1.0,))))
+            out.append(RunRecord(spec, "ok", curve, None, {}))
+    return ResultSet("toy", "sha256:h", tuple(out))
+
+
+def test_never_verified_on_fewer_seeds():
+    with pytest.raises(RunFailedError, match=r"1 of 3 seeds failed.*never verified on fewer seeds.*RuntimeError: boom"):
+        CurveSet.from_results(_records(3, fail=(1,)), label="rerun", expected=3)
+    with pytest.raises(ResultsError, match=r"3 completed seeds, but the manifest asks for 5"):
+        CurveSet.from_results(_records(3), label="rerun", expected=5)
+    assert len(CurveSet.from_results(_records(3), label="rerun", expected=3).runs) == 3
+
+
+def test_margin_for_negative_return_tasks_from_the_registry():
+    # Reward thresholds from gymnasium's registry; random-policy returns measured here. MountainCar's
+    # random policy never reaches the flag within the 200-step limit (common practice), so its
+    # return is exactly -200; Acrobot's almost never swings up within 500 steps (recalled from
+    # memory: about -500), so its measured mean lies close to the limit.
+    evaluation = EvaluationPlan(interval=1, episodes=5, seed=0)
+    car = TaskSpec("MountainCar-v0")
+    assert task_threshold(car) == gymnasium.spec("MountainCar-v0").reward_threshold == -110.0
+    floor = random_policy_return(car, evaluation)
+    assert floor == -float(gymnasium.spec("MountainCar-v0").max_episode_steps)
+    assert GatePolicy().margin_for("final", floor=floor, threshold=-110.0, budget=1) == pytest.approx(9.0)
+    acrobot = TaskSpec("Acrobot-v1")
+    low = random_policy_return(acrobot, evaluation)
+    assert -500.0 <= low <= -400.0
+    assert GatePolicy().margin_for("auc", floor=low, threshold=task_threshold(acrobot), budget=1) == pytest.approx(
+        0.1 * (-100.0 - low))
+    assert random_policy_return(acrobot, evaluation) == low  # deterministic
