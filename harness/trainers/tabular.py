@@ -134,8 +134,8 @@ def learn(
 
     Yields
     ------
-    The step count and the live table, shape ``(n_states, n_actions)``, indexed from 0 (the
-    spaces' ``start`` is subtracted); copy it to keep it past the next step.
+    The step count and a copy of the table, shape ``(n_states, n_actions)``, float64, indexed
+    from 0 (the spaces' ``start`` is subtracted).
 
     References
     ----------
@@ -147,7 +147,9 @@ def learn(
     n_actions, act_start = _discrete_size(env.action_space, "actions", env)
     if any(b < a for a, b in zip(stops, stops[1:])) or (stops and stops[0] < 0):
         raise ValueError(f"`stops` must be non-negative and non-decreasing, got {list(stops)}")
-    q = np.full((n_states, n_actions), float(settings.initial_value), dtype=np.float64)
+    # Python lists of floats: the same float64 arithmetic as NumPy, without its per-call overhead
+    # on rows of 4-6 entries (about twice the steps per second).
+    q = [[float(settings.initial_value)] * n_actions for _ in range(n_states)]
     discount, alpha = float(settings.discount), float(settings.step_size)
     obs, _ = env.reset(seed=int(env_seed))
     state = int(obs) - obs_start
@@ -158,18 +160,22 @@ def learn(
             if explore.random() < settings.epsilon(step):
                 action = int(explore.integers(n_actions))
             else:
-                best = np.flatnonzero(row == row.max())
-                action = int(best[0]) if best.size == 1 else int(best[explore.integers(best.size)])
+                best = max(row)
+                ties = row.count(best)
+                action = row.index(best)
+                if ties > 1:
+                    pick = int(explore.integers(ties))
+                    action = [a for a, value in enumerate(row) if value == best][pick]
             obs, reward, terminated, truncated, _ = env.step(action + act_start)
             following = int(obs) - obs_start
-            target = float(reward) if terminated else float(reward) + discount * float(q[following].max())
+            target = float(reward) if terminated else float(reward) + discount * max(q[following])
             row[action] += alpha * (target - row[action])
             step += 1
             if terminated or truncated:
                 obs, _ = env.reset()
                 following = int(obs) - obs_start
             state = following
-        yield step, q
+        yield step, np.array(q, dtype=np.float64)
 
 
 def evaluation_rng(run: RunSpec, step: int) -> np.random.Generator:
