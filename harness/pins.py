@@ -18,13 +18,16 @@ import os
 import platform
 import stat
 import tempfile
+from collections.abc import MutableMapping
 from pathlib import Path
 
 import numpy as np
 import threadpoolctl
 import tomlkit
+import tomlkit.exceptions
 
 import harness
+from harness.errors import ManifestError
 
 __all__ = ["DriftRow", "Pins", "blas_in_use", "drift", "installed_pins", "write_pins"]
 
@@ -144,9 +147,15 @@ def write_pins(path: str | os.PathLike, pins: Pins) -> None:
     folder, then ``os.replace``), so a crash leaves either the old or the new file.
     """
     target = Path(path)
-    document = tomlkit.parse(target.read_text(encoding="utf-8"))
+    try:
+        document = tomlkit.parse(target.read_text(encoding="utf-8"))
+    except tomlkit.exceptions.ParseError as exc:
+        raise ManifestError(f"is not valid TOML: {exc}; fix the syntax there", path=str(target)) from None
     values = pins.to_json()
     table = document.get("pins")
+    if table is not None and not isinstance(table, MutableMapping):
+        raise ManifestError(f"must be a table, got {table!r}; remove the line to let it be written",
+                            path=str(target), key="pins")
     if table is None:
         table = tomlkit.table()
         table.comment(_PINS_COMMENT)

@@ -15,6 +15,7 @@ from rich.console import Console
 
 import harness
 from harness.cli import ExitCode, main
+from harness.errors import ManifestError
 from harness.manifest import load_manifest
 from harness.pins import Pins, drift, installed_pins, write_pins
 
@@ -124,3 +125,12 @@ def test_pin_and_drift_commands(tmp_path):
     code, out = _cli("pin", str(path))
     assert code == ExitCode.OK and "1.0" in out  # the table shows the value it replaced
     assert load_manifest(path).pins == installed_pins(config_hash=load_manifest(path).config_hash)
+
+
+@pytest.mark.parametrize(("text", "pattern"), [("a = [1,\n", r"is not valid TOML"), ("pins = 3\n", r"\[pins\]: must be a table")])
+def test_write_pins_refuses_what_it_cannot_rewrite(tmp_path, text, pattern):
+    path = tmp_path / "m.toml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(ManifestError, match=pattern):
+        write_pins(path, installed_pins(config_hash="sha256:x"))
+    assert path.read_text(encoding="utf-8") == text
