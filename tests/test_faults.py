@@ -19,6 +19,8 @@ from pathlib import Path
 from runner_toys import folder_bytes, toy_specs
 
 from harness.cache import RunCache
+from harness.executors import Task, WorkerResult
+from harness.executors.local import LocalExecutor
 from harness.runner import run_specs
 from harness.store import read_results
 
@@ -83,6 +85,25 @@ def test_killed_worker_is_reported_and_a_rerun_gives_clean_bytes(tmp_path):
     assert folder_bytes(tmp_path / "res") == folder_bytes(tmp_path / "clean")
     assert all(before[k] == v for k, v in folder_bytes(tmp_path / "res").items() if k != "seed-7-1.json")
     assert clean.ok
+
+
+def test_worker_that_died_while_idle_is_replaced():
+    pool = LocalExecutor(1)
+    try:
+        first, second = (Task((spec,)) for spec in toy_specs(2))
+        pool.submit(first)
+        done = []
+        while pool.pending():
+            done += [r for r in pool.poll(1.0) if isinstance(r, WorkerResult)]
+        [idle] = pool._pool
+        idle.process.kill()
+        idle.process.join()
+        pool.submit(second)
+        while pool.pending():
+            done += [r for r in pool.poll(1.0) if isinstance(r, WorkerResult)]
+        assert [(r.index, r.failure) for r in done] == [(0, None), (1, None)]
+    finally:
+        pool.close()
 
 
 _SCRIPT = textwrap.dedent(

@@ -21,6 +21,7 @@ Differences from the local executor, stated plainly:
 
 from __future__ import annotations
 
+import asyncio
 import time
 from collections.abc import Sequence
 
@@ -105,7 +106,10 @@ class DaskExecutor:
             if future.status == "finished":
                 out.extend(WorkerResult.from_plain(future.result()))
             else:
-                exc = future.exception()
+                try:
+                    exc = future.exception()
+                except (Exception, asyncio.CancelledError) as error:  # cancelled by the cluster
+                    exc = error
                 reason = f"dask task failed ({type(exc).__name__}: {exc}); a dask worker running it died or was lost"
                 out.extend(WorkerResult.failed_all(task, reason, wall_seconds=time.monotonic() - t0))
         now = time.monotonic()

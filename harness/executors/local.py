@@ -126,12 +126,17 @@ class LocalExecutor:
     def submit(self, task: Task) -> None:
         if self.capacity() < 1:
             raise RuntimeError("no free worker: check capacity() before submit()")
+        for idle in [w for w in self._pool if w.task is None and not w.process.is_alive()]:
+            self._retire(idle, kill=True)  # died between tasks: replace it
         worker = next((w for w in self._pool if w.task is None), None)
         if worker is None:
             worker = _Worker(self._ctx)
             self._pool.append(worker)
         worker.task, worker.started = task, time.monotonic()
-        worker.conn.send(task.payload())
+        try:
+            worker.conn.send(task.payload())
+        except OSError:
+            pass  # the worker died just now: poll() sees its sentinel and reports the task failed
 
     def poll(self, timeout: float) -> Sequence[RunEvent | WorkerResult]:
         busy = [w for w in self._pool if w.task is not None]
