@@ -202,14 +202,15 @@ def test_missing_file():
         load_manifest("nope.toml")
 
 
-@pytest.mark.parametrize("command", ["pin", "drift"])
-def test_cli_exits_2_and_writes_nothing_on_a_bad_manifest(tmp_path, command):
+@pytest.mark.parametrize(("what", "old", "new", "append", "key", "pattern"), BAD, ids=[b[0] for b in BAD])
+def test_cli_exits_2_and_writes_nothing_on_a_bad_manifest(tmp_path, what, old, new, append, key, pattern):
     path = tmp_path / "bad.toml"
-    path.write_text(manifest_text("every = 500", "every = 5000"), encoding="utf-8")
+    path.write_text(manifest_text(old, new, append=append), encoding="utf-8")
     before = path.read_bytes()
-    out = StringIO()
-    code = main([command, str(path)], console=Console(file=out, width=200))
-    assert code == ExitCode.BAD_INPUT == 2
-    assert "[evaluation.every]" in out.getvalue() and "lower `every`" in out.getvalue()
+    for command in ("pin", "drift"):
+        out = StringIO()
+        code = main([command, str(path)], console=Console(file=out, width=400))
+        assert code == ExitCode.BAD_INPUT == 2
+        assert f"bad.toml [{key}]: " in out.getvalue()  # file and key path, unmangled by the renderer
     assert path.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml"]
