@@ -168,7 +168,14 @@ def _tasks(specs: Sequence[RunSpec], time_limit: float | None, search_path: str 
 class _Run:
     """State of one :func:`run_specs` call: records so far, claims held, where results go."""
 
-    def __init__(self, specs, folder, versions, cache, on_event):
+    def __init__(
+        self,
+        specs: tuple[RunSpec, ...],
+        folder: Path,
+        versions: dict[str, str],
+        cache: RunCache | None,
+        on_event: OnEvent | None,
+    ):
         self.specs: tuple[RunSpec, ...] = specs
         self.folder: Path = folder
         self.versions: dict[str, str] = versions
@@ -185,7 +192,8 @@ class _Run:
 
     def keep(self, record: RunRecord, source: str, wall: float | None = None) -> None:
         index = record.spec.index
-        write_record(self.folder, record)
+        if source != "resumed":  # a resumed record is read from its file, which stays as it is
+            write_record(self.folder, record)
         if source == "trained" and self.cache is not None:
             self.cache.put(record)
         self.records[index], self.sources[index] = record, source

@@ -8,7 +8,6 @@ rerun, and two runners started together on one results folder and cache.
 from __future__ import annotations
 
 import json
-import os
 import signal
 import subprocess
 import sys
