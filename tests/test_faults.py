@@ -105,6 +105,29 @@ def test_worker_that_died_while_idle_is_replaced():
         pool.close()
 
 
+class _GarbledTask(Task):
+    def payload(self) -> str:
+        return "{not json"
+
+
+def test_fault_outside_the_trainer_comes_back_as_a_traceback_and_the_worker_lives_on():
+    pool = LocalExecutor(1)
+    try:
+        spec = toy_specs(1)[0]
+        pool.submit(_GarbledTask((spec,)))
+        results = []
+        while pool.pending():
+            results += [r for r in pool.poll(1.0) if isinstance(r, WorkerResult)]
+        pid = pool._pool[0].process.pid
+        pool.submit(Task((spec,)))
+        while pool.pending():
+            results += [r for r in pool.poll(1.0) if isinstance(r, WorkerResult)]
+        assert "json.decoder.JSONDecodeError" in results[0].failure and results[0].curve is None
+        assert results[1].failure is None and pool._pool[0].process.pid == pid
+    finally:
+        pool.close()
+
+
 _SCRIPT = textwrap.dedent(
     """
     import json, sys

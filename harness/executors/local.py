@@ -21,6 +21,7 @@ import multiprocessing.connection as mpc
 import os
 import signal
 import time
+import traceback
 from collections.abc import Sequence
 from multiprocessing.context import BaseContext
 
@@ -36,7 +37,11 @@ def default_context() -> str:
 
 
 def worker_main(conn: mpc.Connection) -> None:
-    """Loop of a worker process: receive a task payload, train it, send events and the result."""
+    """Loop of a worker process: receive a task payload, train it, send events and the result.
+
+    Messages to the parent: ``("checkpoint", (index, seed, step, mean))``, then
+    ``("done", run_task's reply)`` or ``("error", traceback)``.
+    """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
     def emit(index: int, seed: str, step: int, mean: float) -> None:
@@ -49,7 +54,10 @@ def worker_main(conn: mpc.Connection) -> None:
             return
         if payload is None:
             return
-        conn.send(("done", run_task(payload, emit)))
+        try:
+            conn.send(("done", run_task(payload, emit)))
+        except Exception:  # a fault outside the trainer (run_task catches the trainer's own)
+            conn.send(("error", traceback.format_exc()))
 
 
 def _death_reason(exitcode: int | None) -> str:
@@ -170,8 +178,11 @@ class LocalExecutor:
                 if kind == "checkpoint":
                     index, seed, step, mean = data
                     out.append(RunEvent("checkpoint", index, seed, step=step, mean_return=mean))
-                else:
+                elif kind == "done":
                     out.extend(WorkerResult.from_plain(data))
+                    w.task = None
+                else:
+                    out.extend(WorkerResult.failed_all(w.task, data, wall_seconds=time.monotonic() - w.started))
                     w.task = None
         except (EOFError, OSError):
             pass
