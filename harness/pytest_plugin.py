@@ -7,7 +7,7 @@ fixture; the test fails, with the verdict's explanation, when the gate fails::
     import pytest
 
     @pytest.mark.rlharness("manifests/frozenlake-q.toml")
-    def test_frozenlake_still_learns(rlharness_verdict):
+    def test_frozenlake_still_learns(rlharness_verdict):   # the fixture is optional
         assert rlharness_verdict.exact.status == "identical"   # optional extra assertions
 
     def test_taxi_strict(rlharness_verify):
@@ -71,6 +71,39 @@ def _under_root(config: pytest.Config, path: str | Path) -> Path:
     return path if path.is_absolute() else config.rootpath / path
 
 
+def _verify(config: pytest.Config, nodeid: str, manifest: str | Path, *, baseline: str | Path | None = None,
+            **policy: Any) -> Any:
+    """Rerun and verify one manifest; fail the running test unless the gate passes."""
+    from harness.baseline import default_baseline_path
+    from harness.errors import HarnessError
+    from harness.manifest import load_manifest
+    from harness.verify import rerun_and_verify
+
+    manifest_path = _under_root(config, manifest)
+    problem = None
+    try:
+        loaded = load_manifest(manifest_path)
+        folder = config.getoption(OPTION_BASELINES) or config.getini(_INI_BASELINES)
+        baseline_path = (_under_root(config, baseline) if baseline is not None
+                         else default_baseline_path(loaded.name, _under_root(config, folder)))
+        verdict = rerun_and_verify(
+            loaded,
+            baseline_path=baseline_path,
+            policy=loaded.check.with_overrides(**policy),
+            results_dir=_under_root(config, config.getoption(OPTION_RESULTS)) / loaded.name,
+            workers=config.getoption(OPTION_WORKERS),
+            use_cache=not config.getoption(OPTION_NO_CACHE),
+        )
+    except HarnessError as exc:
+        problem = f"rl-harness could not verify {manifest_path}: {exc}"
+    if problem is not None:  # failed outside the except block: the report shows the message alone
+        pytest.fail(problem, pytrace=False)
+    config.stash[_VERDICTS].append((nodeid, verdict))
+    if not verdict.passed:
+        pytest.fail(verdict.explain(), pytrace=False)
+    return verdict
+
+
 @pytest.fixture
 def rlharness_verify(request: pytest.FixtureRequest) -> Callable[..., Any]:
     """A function ``verify(manifest, *, baseline=None, **policy)`` that reruns and verifies a manifest.
@@ -78,48 +111,42 @@ def rlharness_verify(request: pytest.FixtureRequest) -> Callable[..., Any]:
     It returns the :class:`harness.verify.Verdict` when the gate passes and fails the test
     with the verdict's explanation otherwise.
     """
-    config = request.config
 
-    def verify(manifest: str | Path, *, baseline: str | Path | None = None, **policy: Any) -> Any:
-        from harness.baseline import default_baseline_path
-        from harness.errors import HarnessError
-        from harness.manifest import load_manifest
-        from harness.verify import rerun_and_verify
-
-        manifest_path = _under_root(config, manifest)
-        try:
-            loaded = load_manifest(manifest_path)
-            folder = config.getoption(OPTION_BASELINES) or config.getini(_INI_BASELINES)
-            baseline_path = (_under_root(config, baseline) if baseline is not None
-                             else default_baseline_path(loaded.name, _under_root(config, folder)))
-            verdict = rerun_and_verify(
-                loaded,
-                baseline_path=baseline_path,
-                policy=loaded.check.with_overrides(**policy),
-                results_dir=_under_root(config, config.getoption(OPTION_RESULTS)) / loaded.name,
-                workers=config.getoption(OPTION_WORKERS),
-                use_cache=not config.getoption(OPTION_NO_CACHE),
-            )
-        except HarnessError as exc:
-            pytest.fail(f"rl-harness could not verify {manifest_path}: {exc}", pytrace=False)
-        config.stash[_VERDICTS].append((request.node.nodeid, verdict))
-        if not verdict.passed:
-            pytest.fail(verdict.explain(), pytrace=False)
-        return verdict
+    def verify(manifest: str | Path, **options: Any) -> Any:
+        return _verify(request.config, request.node.nodeid, manifest, **options)
 
     return verify
 
 
 @pytest.fixture
-def rlharness_verdict(request: pytest.FixtureRequest, rlharness_verify: Callable[..., Any]) -> Any:
-    """The verdict for the manifest named by the test's ``@pytest.mark.rlharness(...)`` marker."""
+def rlharness_verdict(request: pytest.FixtureRequest) -> Any:
+    """The verdict for the manifest named by the test's ``@pytest.mark.rlharness(...)`` marker.
+
+    The verification runs when the test is called (not while fixtures are set up), so a failed
+    gate is a failed test; until then this fixture holds a placeholder.
+    """
     marker = request.node.get_closest_marker(MARKER)
     if marker is None or not marker.args:
         raise pytest.UsageError(
             f"{request.node.nodeid}: the rlharness_verdict fixture needs a marker naming the manifest, "
             f"e.g. @pytest.mark.{MARKER}('manifests/frozenlake-q.toml')"
         )
-    return rlharness_verify(*marker.args, **marker.kwargs)
+    return _PENDING
+
+
+_PENDING = object()
+
+
+@pytest.hookimpl(tryfirst=True)
+def pytest_pyfunc_call(pyfuncitem: pytest.Function) -> None:
+    """Verify the manifest of a marked test before its body runs, and hand it the verdict."""
+    marker = pyfuncitem.get_closest_marker(MARKER)
+    if marker is None or not marker.args:
+        return None
+    verdict = _verify(pyfuncitem.config, pyfuncitem.nodeid, *marker.args, **marker.kwargs)
+    if pyfuncitem.funcargs.get("rlharness_verdict") is _PENDING:
+        pyfuncitem.funcargs["rlharness_verdict"] = verdict
+    return None
 
 
 def pytest_terminal_summary(terminalreporter: Any, exitstatus: int, config: pytest.Config) -> None:
