@@ -59,11 +59,11 @@ class RunProgress:
         self.progress = Progress(
             SpinnerColumn(),
             TextColumn("{task.description}"),
-            BarColumn(),
+            BarColumn(bar_width=10),
             MofNCompleteColumn(),
-            TextColumn("steps  return {task.fields[ret]:>8}"),
+            TextColumn("steps  ret {task.fields[ret]:>7}"),
             TimeElapsedColumn(),
-            TimeRemainingColumn(),
+            TimeRemainingColumn(compact=True),
             console=console,
             disable=not console.is_terminal,
         )
