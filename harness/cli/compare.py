@@ -33,15 +33,14 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
 
         base_policy = load_manifest(args.manifest).check
     policy = policy_from_args(base_policy, args)
-    sides = []
+    stored = [read_results(folder) for folder in (args.a, args.b)]
     try:
-        for folder in (args.a, args.b):
-            results = read_results(folder)
-            sides.append(CurveSet.from_results(results, label=f"results {Path(folder)}", expected=len(results.records)))
+        sides = [CurveSet.from_results(results, label=f"results {Path(folder)}", expected=len(results.records))
+                 for folder, results in zip((args.a, args.b), stored, strict=True)]
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED
-    spec = read_results(args.b).records[0].spec
+    spec = stored[1].records[0].spec
     threshold = task_threshold(spec.task) if policy.threshold is None else None
     floor = None
     if policy.margin is None and policy.floor is None:

@@ -16,7 +16,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.errors import RunFailedError
+from harness.errors import HarnessError, RunFailedError
 from harness.policy import KNOWN_METRICS, GatePolicy
 from harness.verify import Verdict
 
@@ -54,6 +54,7 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
     default = Path("results") / manifest.name
     if args.no_run:
         return read_results(Path(args.results) if args.results else default)
+    from harness.report.progress import RunProgress
     from harness.runner import run_manifest
 
     folder = Path(args.results) if args.results else default
@@ -62,8 +63,12 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
         folder.parent.mkdir(parents=True, exist_ok=True)
         folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
     console.print(f"running {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...", highlight=False)
-    outcome = run_manifest(manifest, results_dir=folder, workers=args.workers, executor=args.executor,
-                           scheduler=args.scheduler, use_cache=use_cache)
+    try:
+        with RunProgress(console) as progress:  # draws nothing when the console is not a terminal
+            outcome = run_manifest(manifest, results_dir=folder, workers=args.workers, executor=args.executor,
+                                   scheduler=args.scheduler, use_cache=use_cache, on_event=progress)
+    except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
+        raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
     failed = outcome.results.failed()
     if failed:
         lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
