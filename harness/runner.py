@@ -16,7 +16,8 @@ optimiser, replay memory, environment and Generator states) is not exposed for
 saving, and the runs this harness targets take minutes, so a restart costs at
 most one run's time per worker. Failed runs are recorded with the reason
 and trained again on the next invocation. The index is written last, once every
-seed has a record.
+seed has a record, and removed before anything is trained: a folder with an index
+is complete and consistent.
 
 Two runners sharing a cache do not train the same run twice: a run is trained
 only under its file lock in the cache (:meth:`~harness.cache.RunCache.claim`);
@@ -359,6 +360,9 @@ def run_specs(
     todo = [s for s in specs if s.index not in run.records]
     search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
     tasks = _tasks(todo, time_limit, search_path) if todo else []
+    if tasks:  # files are about to change: until the new index is written, the folder has none
+        with FileLock(str(folder / _LOCK_FILE)):
+            (folder / INDEX_FILE).unlink(missing_ok=True)
     with _sigterm_as_interrupt():
         pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if tasks else None
         try:
