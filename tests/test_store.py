@@ -5,7 +5,11 @@ from __future__ import annotations
 import json
 import os
 
+import struct
+
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from runner_toys import toy_specs
 
 from harness.curves import Checkpoint, LearningCurve
@@ -17,6 +21,8 @@ from harness.store import (
     read_record,
     read_results,
     record_file_name,
+    record_from_json,
+    record_text,
     write_record,
     write_results,
 )
@@ -148,3 +154,15 @@ def test_failed_write_leaves_the_old_file_and_no_temporary(tmp_path, monkeypatch
         write_record(tmp_path, RunRecord(good.spec, "ok", _curve(5.0), None, VERSIONS))
     assert path.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == [record_file_name(good.spec)]
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(st.floats(-1e300, 1e300), min_size=1, max_size=4), min_size=1, max_size=6))
+def test_any_finite_returns_survive_the_file_bit_for_bit(returns):
+    # Python's repr of a float is the shortest string that reads back to the same double
+    # (Python docs, "Floating Point Arithmetic"; Steele & White 1990 / Gay 1990 shortest round trip).
+    spec = toy_specs(1)[0]
+    curve = LearningCurve(tuple(Checkpoint(25 * i, tuple(r)) for i, r in enumerate(returns)))
+    back = record_from_json(json.loads(record_text(RunRecord(spec, "ok", curve, None, VERSIONS))), where="memory")
+    bits = [struct.pack("<d", r) for c in curve.checkpoints for r in c.returns]
+    assert [struct.pack("<d", r) for c in back.curve.checkpoints for r in c.returns] == bits
