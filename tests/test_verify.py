@@ -7,6 +7,8 @@ import dataclasses
 import gymnasium
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st_h
 from scipy import stats as st
 
 from harness.baseline import SeedCurve
@@ -251,3 +253,19 @@ def test_margin_for_negative_return_tasks_from_the_registry():
     assert GatePolicy().margin_for("auc", floor=low, threshold=task_threshold(acrobot), budget=1) == pytest.approx(
         0.1 * (-100.0 - low))
     assert random_policy_return(acrobot, evaluation) == low  # deterministic
+
+
+@settings(max_examples=25, deadline=None)
+@given(shift=st_h.floats(-6.0, 6.0), seed=st_h.integers(0, 2**16))
+def test_swapping_sides_swaps_worse_and_better(shift, seed):
+    # Invariant of the one-sided tests: what is worse one way round is better the other way round,
+    # with the same Holm-adjusted p-value; equivalent and inconclusive are symmetric.
+    base, cand = _pair(shift, n=6, seed=seed)
+    policy = GatePolicy(metrics=("final", "auc"), margin=2.0, locate=False)
+    forward = verify_sets(base, cand, policy).checks
+    backward = verify_sets(cand, base, policy).checks
+    mirror = {"worse": "better", "better": "worse", "equivalent": "equivalent", "inconclusive": "inconclusive"}
+    for f, b in zip(forward, backward, strict=True):
+        assert b.verdict == mirror[f.verdict]
+        assert b.estimate == pytest.approx(-f.estimate)
+        assert (b.pvalue_worse, b.pvalue_better) == pytest.approx((f.pvalue_better, f.pvalue_worse))
