@@ -42,13 +42,15 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 
+from harness import stats
 from harness.curveset import CurveSet
 from harness.errors import BaselineError
+from harness.metrics import METRICS
 from harness.policy import GatePolicy, PublishedReference
+from harness.stats import ConfidenceInterval
 
 __all__ = ["VERDICTS", "Divergence", "MetricCheck", "StatisticalComparison", "compare_sets"]
 
@@ -75,7 +77,7 @@ class MetricCheck:
     candidate_sd: float
     candidate_n: int
     estimate: float
-    interval: Any
+    interval: ConfidenceInterval
     confidence_level: float
     pvalue: float
     pvalue_worse: float
@@ -159,8 +161,6 @@ class _Values:
 
 
 def _metric_values(metric: str, curve_set: CurveSet, policy: GatePolicy, threshold: float | None) -> _Values:
-    from harness.metrics import METRICS
-
     spec = METRICS[metric]
     if spec.censored:
         if threshold is None:
@@ -185,7 +185,7 @@ class _Raw:
     base: tuple[float, float, int]
     cand: tuple[float, float, int]
     estimate: float
-    interval: Any
+    interval: ConfidenceInterval
     p_worse: float
     p_better: float
     p_equivalence: float
@@ -202,9 +202,6 @@ def _summary(values: np.ndarray) -> tuple[float, float, int]:
 
 def _raw_check(name: str, metric: str, against: str, cand: _Values, base: _Values | None,
                reference: PublishedReference | None, margin: float, alpha: float) -> _Raw:
-    from harness import stats
-    from harness.metrics import METRICS
-
     higher_is_better = METRICS[metric].higher_is_better
     c = _summary(cand.values)
     b = (reference.mean, reference.std, reference.seeds) if reference is not None else _summary(base.values)
@@ -241,8 +238,6 @@ def _raw_check(name: str, metric: str, against: str, cand: _Values, base: _Value
 
 def _finish(raw: _Raw, p_worse: float, p_better: float, reject_worse: bool, reject_better: bool,
             alpha: float, power: float) -> MetricCheck:
-    from harness import stats
-
     if reject_worse:
         verdict, p = "worse", p_worse
     elif reject_better:
@@ -275,8 +270,6 @@ def _finish(raw: _Raw, p_worse: float, p_better: float, reject_worse: bool, reje
 
 
 def _divergence(baseline: CurveSet, candidate: CurveSet, policy: GatePolicy) -> Divergence | None:
-    from harness import stats
-
     a, b = candidate.curve_matrix(), baseline.curve_matrix()
     if a.shape[0] < 2 or b.shape[0] < 2:
         return None
@@ -349,8 +342,6 @@ def compare_sets(
         raws.append(_raw_check(f"{ref.metric} vs {ref.source}", ref.metric, ref.source,
                                _metric_values(ref.metric, candidate, policy, threshold), None, ref, margin,
                                policy.alpha))
-    from harness import stats
-
     worse = stats.holm([r.p_worse for r in raws], alpha=policy.alpha)
     better = stats.holm([r.p_better for r in raws], alpha=policy.alpha)
     checks = tuple(
