@@ -71,13 +71,13 @@ def plot_curves(baseline: CurveSet | None, candidate: CurveSet, path: str | os.P
         raise PlotUnavailableError(f"plotting needs matplotlib, which is not installed: {INSTALL_HINT}") from None
     fig = Figure(figsize=(7.0, 4.2), layout="constrained")
     ax = fig.add_subplot()
-    sides = [("baseline", baseline, "tab:blue"), ("candidate", candidate, "tab:orange")]
-    for name, curves, colour in sides:
+    sides = [("baseline", baseline, "tab:blue", "-"), ("candidate", candidate, "tab:orange", "--")]
+    for name, curves, colour, style in sides:
         if curves is None:
             continue
         steps = np.asarray(curves.steps)
         mean, low, high = curve_band(curves.curve_matrix())
-        ax.plot(steps, mean, color=colour, label=f"{name} (n={len(curves.runs)} seeds)")
+        ax.plot(steps, mean, color=colour, linestyle=style, label=f"{name} (n={len(curves.runs)} seeds)")
         ax.fill_between(steps, low, high, color=colour, alpha=0.25, linewidth=0)
     ax.set_xlabel("environment steps")
     ax.set_ylabel("mean evaluation return")
