@@ -160,10 +160,25 @@ def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunR
     return None
 
 
-def _tasks(specs: Sequence[RunSpec], time_limit: float | None, search_path: str | None) -> list[Task]:
-    """Lockstep groups of at most K seeds, in seed order (K from the trainer, 1 without lockstep)."""
-    k = lockstep_size(specs[0], search_path=search_path)
-    return [Task(tuple(specs[i : i + k]), time_limit, search_path) for i in range(0, len(specs), k)]
+def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | None, search_path: str | None) -> list[Task]:
+    """Split the runs, in seed order, into lockstep groups of at most ``k`` seeds.
+
+    The number of groups is rounded up to a multiple of the executor's ``slots`` (while
+    there are seeds enough) and the sizes are balanced, so the workers finish together:
+    10 seeds with K = 4 on 2 workers become 3, 3, 2, 2 rather than 4, 4, 2. A seed's numbers
+    do not depend on its group (the trainer interface's lockstep contract).
+    """
+    n = len(specs)
+    groups = -(-n // k)
+    if groups % slots:
+        groups = min(n, groups + slots - groups % slots)
+    size, extra = divmod(n, groups)
+    tasks, start = [], 0
+    for g in range(groups):
+        end = start + size + (g < extra)
+        tasks.append(Task(tuple(specs[start:end]), time_limit, search_path))
+        start = end
+    return tasks
 
 
 class _Run:
@@ -359,15 +374,15 @@ def run_specs(
             run.from_cache(spec)
     todo = [s for s in specs if s.index not in run.records]
     search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
-    tasks = _tasks(todo, time_limit, search_path) if todo else []
-    if tasks:  # files are about to change: until the new index is written, the folder has none
+    k = lockstep_size(todo[0], search_path=search_path) if todo else 1  # resolves the trainer: fails early
+    if todo:  # files are about to change: until the new index is written, the folder has none
         with FileLock(str(folder / _LOCK_FILE)):
             (folder / INDEX_FILE).unlink(missing_ok=True)
     with _sigterm_as_interrupt():
-        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if tasks else None
+        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if todo else None
         try:
             if pool is not None:
-                _drive(run, pool, tasks)
+                _drive(run, pool, _tasks(todo, k, max(1, pool.capacity()), time_limit, search_path))
         finally:
             if pool is not None:
                 pool.close()

@@ -13,7 +13,7 @@ from harness.errors import ManifestError
 from harness.executors import Task, WorkerResult
 from harness.executors.work import lockstep_size, run_task
 from harness.manifest import parse_manifest
-from harness.runner import run_manifest, run_specs
+from harness.runner import _tasks, run_manifest, run_specs
 from harness.store import read_results, record_text
 
 TABULAR = """
@@ -164,3 +164,14 @@ def test_input_validation_names_the_parameter(tmp_path):
         run_specs(specs, results_dir=tmp_path, workers=0, use_cache=False)
     with pytest.raises(ManifestError, match="unknown trainer 'nope'"):
         run_specs(toy_specs(1, trainer="nope"), results_dir=tmp_path / "n", use_cache=False)
+
+
+@pytest.mark.parametrize(
+    ("n", "k", "slots", "sizes"),
+    [(10, 4, 2, [3, 3, 2, 2]), (10, 1, 2, [1] * 10), (10, 8, 2, [5, 5]), (3, 8, 2, [2, 1]), (2, 4, 8, [1, 1])],
+)
+def test_lockstep_groups_are_balanced_across_workers_in_seed_order(n, k, slots, sizes):
+    # Balanced partitioning so that workers finish together: common practice in static load balancing.
+    tasks = _tasks(toy_specs(n), k, slots, None, None)
+    assert [len(t.specs) for t in tasks] == sizes
+    assert [s.index for t in tasks for s in t.specs] == list(range(n))
