@@ -331,6 +331,12 @@ def compare_sets(
             f"{list(candidate.steps)}; curves can only be compared on the same grid: keep [budget] and "
             "[evaluation].every as recorded, or record a new baseline"
         )
+    for side in (baseline, candidate):
+        if side is not None and len(side.runs) < 2:
+            raise BaselineError(
+                f"{side.label}: {len(side.runs)} seed; the statistical checks need at least 2 seeds per side "
+                "(seeds are the samples): raise [seeds].count in the manifest"
+            )
     threshold = policy.threshold if policy.threshold is not None else threshold
     raws = []
     for metric in policy.metrics if baseline is not None else ():

@@ -198,6 +198,11 @@ def test_different_checkpoint_grids_are_refused():
         verify_sets(curve_set(flat([1, 2, 3], 3)), curve_set(flat([1, 2, 3], 3), every=50), POLICY)
 
 
+def test_one_seed_is_not_enough():
+    with pytest.raises(BaselineError, match=r"1 seed; the statistical checks need at least 2 seeds per side"):
+        verify_sets(curve_set(flat([1, 2, 3])), curve_set(flat([1])), POLICY)
+
+
 def test_nothing_to_compare_against():
     with pytest.raises(BaselineError, match=r"no baseline and no \[\[reference\]\]"):
         verify_sets(None, curve_set(flat([1, 2, 3])), POLICY)
