@@ -198,10 +198,6 @@ class LocalExecutor:
         w.stop(kill=kill)
         self._pool.remove(w)
 
-    def worker_pids(self) -> tuple[int, ...]:
-        """Process ids of the workers now training (for diagnostics and fault-injection tests)."""
-        return tuple(w.process.pid for w in self._pool if w.task is not None)
-
     def close(self) -> None:
         for w in list(self._pool):
             self._retire(w, kill=w.task is not None)
