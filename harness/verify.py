@@ -40,7 +40,7 @@ __all__ = [
     "baseline_for",
     "rerun_and_verify",
     "ConfigChange",
-    "DriftRow",
+    "VersionChange",
     "ExactCheck",
     "GateDecision",
     "Provenance",
@@ -70,7 +70,7 @@ class ConfigChange:
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
-class DriftRow:
+class VersionChange:
     """One installed component whose version differs between baseline and candidate."""
 
     name: str
@@ -87,7 +87,7 @@ class Provenance:
     baseline_hash: str | None
     candidate_hash: str
     changes: tuple[ConfigChange, ...]
-    drift: tuple[DriftRow, ...]
+    drift: tuple[VersionChange, ...]
 
     @property
     def same_config(self) -> bool:
@@ -200,7 +200,7 @@ def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
     old, new = _flatten(baseline.config), _flatten(candidate.config)
     changes = tuple(ConfigChange(k, old.get(k), new.get(k)) for k in sorted(old.keys() | new.keys())
                     if old.get(k) != new.get(k))
-    drift = tuple(DriftRow(k, baseline.versions.get(k), candidate.versions.get(k))
+    drift = tuple(VersionChange(k, baseline.versions.get(k), candidate.versions.get(k))
                   for k in sorted(baseline.versions.keys() | candidate.versions.keys())
                   if baseline.versions.get(k) != candidate.versions.get(k))
     return Provenance(baseline.label, candidate.label, baseline.config_hash, candidate.config_hash, changes, drift)
