@@ -57,6 +57,10 @@ class RunEvent:
     budget: int | None = None
     message: str | None = None
 
+    def __post_init__(self) -> None:
+        if self.kind not in EVENT_KINDS:
+            raise ValueError(f"`kind` must be one of {EVENT_KINDS}, got {self.kind!r}")
+
 
 @dataclasses.dataclass(frozen=True, slots=True)
 class Task:
