@@ -78,6 +78,8 @@ def main() -> None:
     try:
         text = MANIFEST.format(seeds=args.seeds, budget=args.budget, every=args.budget // 5, decay=args.budget // 2)
         manifest = parse_manifest(text, path=work / "bench.toml")
+        print(f"load average at start: {os.getloadavg()[0]:.2f} (other processes share the cores; "
+              "scaling figures need an idle machine)")
         print(f"cores: {os.cpu_count()}; {args.seeds} seeds of tabular Q-learning on FrozenLake-v1, "
               f"{args.budget} env steps each, 6 checkpoints of 100 episodes")
         walls = {}
@@ -130,6 +132,7 @@ def main() -> None:
             fixed = walls[0] - m * per_run
             print(f"  {label:<30} {per_run * 1e3:7.2f} ms per run (in-process {inproc / m * 1e3:.2f} ms), "
                   f"start-up and shut-down {fixed:5.2f} s")
+        print(f"load average at end: {os.getloadavg()[0]:.2f}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
 
