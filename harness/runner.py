@@ -98,7 +98,15 @@ class RunOutcome:
         return not self.results.failed()
 
 
-def _run_specs_iv(specs: Sequence[RunSpec], time_limit: float | None) -> tuple[RunSpec, ...]:
+def _run_specs_iv(
+    specs: Sequence[RunSpec], time_limit: float | None, results_dir: object, cache: object, on_event: object
+) -> tuple[RunSpec, ...]:
+    if not isinstance(results_dir, (str, os.PathLike)):
+        raise TypeError(f"`results_dir` must be a path, got {type(results_dir).__name__} {results_dir!r}")
+    if cache is not None and not isinstance(cache, (RunCache, str, os.PathLike)):
+        raise TypeError(f"`cache` must be a RunCache, a folder or None, got {type(cache).__name__} {cache!r}")
+    if on_event is not None and not callable(on_event):
+        raise TypeError(f"`on_event` must be callable or None, got {type(on_event).__name__} {on_event!r}")
     if not specs:
         raise ValueError("`specs` must hold at least one RunSpec, got none")
     for s in specs:
@@ -353,7 +361,7 @@ def run_specs(
         On Ctrl-C or SIGTERM, after stopping the workers; finished runs are on disk.
     """
     start = time.perf_counter()
-    specs = _run_specs_iv(specs, time_limit)
+    specs = _run_specs_iv(specs, time_limit, results_dir, cache, on_event)
     folder = Path(results_dir)
     folder.mkdir(parents=True, exist_ok=True)
     if use_cache:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import multiprocessing as mp
 import random
+from pathlib import Path
 
 import pytest
 from runner_toys import folder_bytes, toy_specs
@@ -162,6 +163,12 @@ def test_input_validation_names_the_parameter(tmp_path):
         run_specs(specs, results_dir=tmp_path, executor="dsak", use_cache=False)
     with pytest.raises(ValueError, match="`workers` must be a positive integer, got 0"):
         run_specs(specs, results_dir=tmp_path, workers=0, use_cache=False)
+    with pytest.raises(TypeError, match="`results_dir` must be a path, got int 5"):
+        run_specs(specs, results_dir=5)
+    with pytest.raises(TypeError, match="`cache` must be a RunCache, a folder or None, got bool True"):
+        run_specs(specs, results_dir=tmp_path, cache=True)
+    with pytest.raises(TypeError, match="`on_event` must be callable or None, got list"):
+        run_specs(specs, results_dir=tmp_path, on_event=[])
     with pytest.raises(ManifestError, match="unknown trainer 'nope'"):
         run_specs(toy_specs(1, trainer="nope"), results_dir=tmp_path / "n", use_cache=False)
 
@@ -175,3 +182,11 @@ def test_lockstep_groups_are_balanced_across_workers_in_seed_order(n, k, slots, 
     tasks = _tasks(toy_specs(n), k, slots, None, None)
     assert [len(t.specs) for t in tasks] == sizes
     assert [s.index for t in tasks for s in t.specs] == list(range(n))
+
+
+def test_default_folders_are_results_by_name_and_a_marked_cache(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.delenv("RLHARNESS_CACHE_DIR", raising=False)
+    out = run_manifest(_manifest(TABULAR, tmp_path), workers=1)
+    assert out.folder == Path("results") / "tiny-taxi" and (tmp_path / "results" / "tiny-taxi" / "index.json").is_file()
+    assert (tmp_path / ".rlharness-cache" / "CACHEDIR.TAG").is_file()
