@@ -40,7 +40,8 @@ def worker_main(conn: mpc.Connection) -> None:
     """Loop of a worker process: receive a task payload, train it, send events and the result.
 
     Messages to the parent: ``("checkpoint", (index, seed, step, mean))``, then
-    ``("done", run_task's reply)`` or ``("error", traceback)``.
+    ``("done", run_task's reply)`` or ``("error", traceback)``. If the parent dies, the
+    next checkpoint event fails to send, which ends the task, and the worker exits.
     """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
@@ -55,9 +56,13 @@ def worker_main(conn: mpc.Connection) -> None:
         if payload is None:
             return
         try:
-            conn.send(("done", run_task(payload, emit)))
+            reply = ("done", run_task(payload, emit))
         except Exception:  # a fault outside the trainer (run_task catches the trainer's own)
-            conn.send(("error", traceback.format_exc()))
+            reply = ("error", traceback.format_exc())
+        try:
+            conn.send(reply)
+        except OSError:  # the parent is gone (killed): nobody wants the result
+            return
 
 
 def _death_reason(exitcode: int | None) -> str:
