@@ -49,8 +49,11 @@ def _poi(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 def _task_groups(values: np.ndarray, tasks: object, name: str) -> dict[object, np.ndarray]:
     labels = np.asarray(tasks)
     if labels.shape != values.shape:
-        raise ValueError(f"`tasks_{name}` must give one task per value of `{name}` ({values.size}), got shape {labels.shape}")
-    return {lab.item() if hasattr(lab, "item") else lab: np.flatnonzero(labels == lab) for lab in np.unique(labels)}
+        raise ValueError(
+            f"`tasks_{name}` must give one task per value of `{name}` ({values.size}), "
+            f"got shape {labels.shape}"
+        )
+    return {lab.item(): np.flatnonzero(labels == lab) for lab in np.unique(labels)}
 
 
 def _paired_tasks(x, y, tasks_x, tasks_y) -> list[tuple[np.ndarray, np.ndarray]]:

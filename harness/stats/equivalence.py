@@ -60,7 +60,9 @@ def _margin_iv(margin: object) -> tuple[float, float]:
     if isinstance(margin, numbers.Real) and not isinstance(margin, bool):
         m = check_finite_number(margin, "margin")
         if m <= 0:
-            raise ValueError(f"`margin` must be positive (the half-width of the equivalence region), got {margin!r}")
+            raise ValueError(
+                f"`margin` must be positive (the half-width of the equivalence region), got {margin!r}"
+            )
         return (-m, m)
     if isinstance(margin, (tuple, list)) and len(margin) == 2:
         low = check_finite_number(margin[0], "margin[0]")
@@ -236,5 +238,7 @@ def ratio_margin(low_ratio: float = 0.8, high_ratio: float = 1.25) -> tuple[floa
     lo = check_finite_number(low_ratio, "low_ratio")
     hi = check_finite_number(high_ratio, "high_ratio")
     if not 0 < lo < 1 < hi:
-        raise ValueError(f"ratio limits need 0 < low_ratio < 1 < high_ratio, got {low_ratio!r}, {high_ratio!r}")
+        raise ValueError(
+            f"ratio limits need 0 < low_ratio < 1 < high_ratio, got {low_ratio!r}, {high_ratio!r}"
+        )
     return (math.log(lo), math.log(hi))

@@ -197,7 +197,8 @@ def max_statistic_test(
     b = _curves_iv(curves_b, "curves_b")
     if a.shape[1] != b.shape[1]:
         raise ValueError(
-            f"`curves_a` and `curves_b` must have the same checkpoints, got {a.shape[1]} and {b.shape[1]} columns"
+            "`curves_a` and `curves_b` must have the same checkpoints, "
+            f"got {a.shape[1]} and {b.shape[1]} columns"
         )
     alternative = check_alternative(alternative)
     n_resamples = check_positive_int(n_resamples, "n_resamples", minimum=1)

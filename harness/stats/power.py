@@ -174,9 +174,9 @@ def seeds_needed(
     target = _power_target_iv(power, alpha)
     alternative = check_alternative(alternative)
     if d == 0 or (alternative == "greater" and d < 0) or (alternative == "less" and d > 0):
+        need = {"greater": "positive", "less": "negative"}.get(alternative, "non-zero")
         raise ValueError(
-            f"`difference` must be {'positive' if alternative == 'greater' else 'negative' if alternative == 'less' else 'non-zero'} "
-            f"for alternative={alternative!r}, got {difference!r}"
+            f"`difference` must be {need} for alternative={alternative!r}, got {difference!r}"
         )
 
     def enough(n: int) -> bool:

@@ -77,7 +77,9 @@ def _mw_reading(estimate: float, pvalue: float, alternative: str, what: str) -> 
     )
 
 
-def _mann_whitney(x: np.ndarray, y: np.ndarray, alternative: str, method: str, label: str) -> MannWhitneyResult:
+def _mann_whitney(
+    x: np.ndarray, y: np.ndarray, alternative: str, method: str, label: str
+) -> MannWhitneyResult:
     pooled = np.concatenate([x, y])
     if np.ptp(pooled) == 0.0:
         u, p, how = x.size * y.size / 2.0, 1.0, "all values tied"
