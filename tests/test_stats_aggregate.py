@@ -51,6 +51,11 @@ def test_stratified_iqm_interval_across_tasks():
     # Stratification removes the between-task share of the spread: narrower than unstratified.
     plain = bootstrap_iqm(scores, n_resamples=4000, rng=rng)
     assert r.interval.width < plain.interval.width
+    # Stratified BCa: each task is its own sample in the acceleration (Davison & Hinkley 1997, ch. 5);
+    # for a near-symmetric statistic it stays close to the percentile interval.
+    bca = bootstrap_iqm(scores, tasks=tasks, method="bca", n_resamples=4000, rng=rng)
+    assert bca.method == "stratified bca" and abs(bca.acceleration) < 0.1
+    assert bca.interval.width == pytest.approx(r.interval.width, rel=0.3)
 
 
 def test_probability_of_improvement_interval():

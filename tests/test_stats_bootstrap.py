@@ -91,6 +91,11 @@ def test_stratified_resampling_keeps_strata_sizes():
     unstratified = bootstrap_ci(values, np.sum, method="percentile", n_resamples=500, rng=0)
     assert unstratified.interval.width > 0
     assert r.method == "stratified percentile"
+    # One sample: the labels may be any sequence, a tuple included.
+    as_tuple = bootstrap_ci(values, np.sum, strata=tuple(labels), method="percentile", n_resamples=50, rng=0)
+    assert as_tuple.interval.width == 0.0
+    with pytest.raises(ValueError, match=r"`strata` must be a tuple of one label array per sample \(2\)"):
+        bootstrap_ci((values, values), lambda a, b, axis=-1: a.sum(axis) - b.sum(axis), strata=labels)
 
 
 def test_constant_data_gives_a_point_interval():

@@ -104,13 +104,15 @@ def _bootstrap_iv(data, statistic, method, confidence_level, n_resamples, rng, s
     if strata is None:
         groups = [[np.arange(s.size)] for s in samples]
     else:
-        per_sample = strata if isinstance(strata, tuple) else (strata,)
-        if len(per_sample) != len(samples):
+        several = isinstance(data, tuple)
+        per_sample = strata if several else (strata,)
+        if not isinstance(per_sample, tuple) or len(per_sample) != len(samples):
             raise ValueError(
-                f"`strata` must give one label array per sample ({len(samples)}), got {len(per_sample)}"
+                f"`strata` must be a tuple of one label array per sample ({len(samples)}) "
+                f"when `data` is a tuple of samples, got {type(strata).__name__}"
             )
         groups = [
-            _strata_groups(lab, s.size, f"strata[{i}]" if isinstance(strata, tuple) else "strata")
+            _strata_groups(lab, s.size, f"strata[{i}]" if several else "strata")
             for i, (lab, s) in enumerate(zip(per_sample, samples, strict=True))
         ]
     return samples, level, n_resamples, make_rng(rng), groups
@@ -159,9 +161,10 @@ def _bootstrap_distribution(samples, groups, statistic, n_resamples, rng) -> np.
 def _acceleration(samples, groups, statistic) -> float:
     """BCa acceleration from jackknife influence values, one group (sample or stratum) at a time.
 
-    ``a = sum_g n_g^-3 sum_j l_gj^3 / (6 (sum_g n_g^-2 sum_j l_gj^2)^(3/2))`` with
-    ``l_gj = (n_g - 1)(mean_j theta_(gj) - theta_(gj))`` (Davison & Hinkley 1997,
-    eq. 5.23 and section 3.2.1; Efron & Tibshirani 1993, eq. 14.15, for one sample).
+    ``a = sum_g n_g^-3 sum_j l_gj^3 / (6 (sum_g n_g^-2 sum_j l_gj^2)^(3/2))`` with the
+    jackknife influence values ``l_gj = (n_g - 1)(mean_j theta_(gj) - theta_(gj))``
+    (Davison & Hinkley 1997, chapter 5, for several samples; for one sample it is
+    Efron & Tibshirani 1993, eq. 14.15).
     """
     num = den = 0.0
     for k, (s, sample_groups) in enumerate(zip(samples, groups, strict=True)):
