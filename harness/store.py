@@ -93,6 +93,8 @@ class RunRecord:
             raise ValueError(f"a run with status {self.status!r} must {'' if self.status == 'ok' else 'not '}have a curve")
         if (self.status == "failed") != (self.failure is not None):
             raise ValueError(f"a run with status {self.status!r} must {'' if self.status == 'failed' else 'not '}give a failure reason")
+        if self.curve is not None and not all(c.finite for c in self.curve.checkpoints):
+            raise ValueError("a run with status 'ok' must have finite evaluation returns; record it as failed")
 
     @property
     def ok(self) -> bool:

@@ -143,7 +143,7 @@ def test_failed_write_leaves_the_old_file_and_no_temporary(tmp_path, monkeypatch
     path = write_record(tmp_path, good)
     before = path.read_bytes()
     nan_curve = LearningCurve((Checkpoint(0, (float("nan"),)),))
-    with pytest.raises(ValueError, match="Out of range float values are not JSON compliant"):
+    with pytest.raises(ValueError, match="must have finite evaluation returns; record it as failed"):
         write_record(tmp_path, RunRecord(good.spec, "ok", nan_curve, None, VERSIONS))
 
     def broken_replace(src, dst):
