@@ -178,7 +178,9 @@ def mann_whitney_censored(
     (both censored, or equal observed values). When every censoring time is at
     or above every observed value (censoring at a common budget, as in RL
     training), this is exactly the Mann–Whitney test with all censored values
-    tied above every observed one, which is how it is computed.
+    tied above every observed one, which is how it is computed. With censored
+    values present the p-value comes from the normal approximation with the
+    tie correction (two or more censored seeds are ties).
 
     Parameters
     ----------
