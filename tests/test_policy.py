@@ -138,3 +138,12 @@ def test_manifest_errors_name_file_and_key():
     with pytest.raises(ManifestError, match=r"m.toml \[reference\[0\]\.se"):
         parse_manifest(MANIFEST + '\n[[reference]]\nmetric="final"\nmean=1.0\nse=-2.0\nseeds=3\nsource="s"\n',
                        path="m.toml")
+
+
+@pytest.mark.parametrize("module", ["harness.policy", "harness.report.plot"])
+def test_docstring_examples(module):
+    import doctest
+    import importlib
+
+    result = doctest.testmod(importlib.import_module(module))
+    assert result.attempted > 0 and result.failed == 0
