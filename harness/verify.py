@@ -22,6 +22,7 @@ inconclusive.
 from __future__ import annotations
 
 import dataclasses
+import json
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -34,6 +35,7 @@ from harness.compare import Divergence, MetricCheck, StatisticalComparison, comp
 from harness.curveset import CurveSet, random_policy_return, task_threshold
 from harness.errors import BaselineError, ResultsError
 from harness.policy import GatePolicy, PublishedReference
+from harness.spec import canonical_json
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
@@ -197,7 +199,8 @@ def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
     """Compare configurations (key by key) and installed versions of the two sides."""
     if baseline is None:
         return Provenance("published references", candidate.label, None, candidate.config_hash, (), ())
-    old, new = _flatten(baseline.config), _flatten(candidate.config)
+    # Compare the JSON forms: a config read back from a file has lists where the resolved one has tuples.
+    old, new = (_flatten(json.loads(canonical_json(side.config))) for side in (baseline, candidate))
     changes = tuple(ConfigChange(k, old.get(k), new.get(k)) for k in sorted(old.keys() | new.keys())
                     if old.get(k) != new.get(k))
     drift = tuple(VersionChange(k, baseline.versions.get(k), candidate.versions.get(k))

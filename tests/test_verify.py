@@ -181,6 +181,14 @@ def test_config_change_names_the_key():
     assert verdict.exact.status == "skipped"
 
 
+def test_tuples_and_lists_are_the_same_config():
+    # A resolved config holds tuples; the same config read back from a baseline file holds lists.
+    matrix = np.arange(12, dtype=float).reshape(4, 3)
+    resolved = curve_set(matrix, config={"settings": {"hidden": (64, 64)}})
+    stored = curve_set(matrix, config={"settings": {"hidden": [64, 64]}})
+    assert verify_sets(stored, resolved, POLICY).provenance.changes == ()
+
+
 def test_divergence_finds_where_the_curves_part():
     rng = np.random.default_rng(np.random.SeedSequence(11))
     base = rng.normal(0.0, 1.0, size=(8, 6)).cumsum(axis=1) + np.arange(6) * 10
