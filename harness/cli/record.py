@@ -28,7 +28,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)
     check_overwrite(path, overwrite=args.overwrite)
     try:
-        results = obtain_results(args, manifest, console)
+        results, _ = obtain_results(args, manifest, console)
     except RunFailedError as exc:
         console.print(f"runs failed, no baseline written: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

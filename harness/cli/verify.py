@@ -40,8 +40,10 @@ def add_run_arguments(parser: argparse.ArgumentParser) -> None:
                        help="folder of baselines (default: baselines/); the file is <manifest name>.json")
 
 
-def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) -> Any:
-    """The manifest's :class:`~harness.store.ResultSet`: read (``--no-run``) or run (reusing what matches).
+def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Any, Path]:
+    """The manifest's :class:`~harness.store.ResultSet` and its folder: read (``--no-run``) or run.
+
+    Running reuses cached and resumed runs unless ``--fresh``.
 
     Raises
     ------
@@ -53,7 +55,8 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
 
     default = Path("results") / manifest.name
     if args.no_run:
-        return read_results(Path(args.results) if args.results else default)
+        folder = Path(args.results) if args.results else default
+        return read_results(folder), folder
     from harness.report.progress import RunProgress
     from harness.runner import run_manifest
 
@@ -75,7 +78,7 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
         raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
     sources = {s: sum(1 for v in outcome.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
     console.print("runs: " + ", ".join(f"{n} {s}" for s, n in sources.items() if n), highlight=False)
-    return outcome.results
+    return outcome.results, folder
 
 
 def add_policy_arguments(parser: argparse.ArgumentParser) -> None:
@@ -160,8 +163,9 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
         console.print(f"no baseline at {path}: checking against the manifest's published references only",
                       highlight=False)
     try:
-        results = obtain_results(args, manifest, console)
-        verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy)
+        results, folder = obtain_results(args, manifest, console)
+        verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy,
+                                  candidate_label=f"rerun of {manifest.name} (results in {folder})")
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

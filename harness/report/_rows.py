@@ -14,13 +14,13 @@ __all__ = ["CHECK_HEADER", "check_notes", "check_rows", "config_rows", "drift_ro
 CHECK_HEADER = ("check", "baseline", "candidate", "difference [interval]", "margin", "p (Holm)", "verdict")
 
 
-def num(x: float | None) -> str:
-    """Four significant digits; ``-`` for a missing value."""
+def num(x: float | None, digits: int = 4) -> str:
+    """``digits`` significant digits; ``-`` for a missing value."""
     if x is None:
         return "-"
     if math.isinf(x):
         return "inf" if x > 0 else "-inf"
-    return f"{x:.4g}"
+    return f"{x:.{digits}g}"
 
 
 def value(v: Any) -> str:
@@ -29,7 +29,7 @@ def value(v: Any) -> str:
 
 
 def _side(mean: float, sd: float, n: int) -> str:
-    return f"{num(mean)} ± {num(sd)} ({n})"
+    return f"{num(mean)} ± {num(sd, 3)} ({n})"
 
 
 def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
@@ -39,7 +39,7 @@ def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
             c.name,
             _side(c.baseline_mean, c.baseline_sd, c.baseline_n),
             _side(c.candidate_mean, c.candidate_sd, c.candidate_n),
-            f"{c.estimate:+.4g} [{num(c.interval.low)}, {num(c.interval.high)}]",
+            f"{c.estimate:+.3g} [{num(c.interval.low, 3)}, {num(c.interval.high, 3)}]",
             f"±{num(c.margin)}",
             f"{c.pvalue:.3g}",
             c.verdict + (" (within margin)" if c.within_margin else ""),

@@ -55,7 +55,7 @@ class VerdictReport:
                               f"   candidate returns {list(v.exact.candidate_returns)}"))
         table = Table(title="3. statistical checks", title_justify="left", show_edge=False, pad_edge=False)
         for name in CHECK_HEADER:
-            table.add_column(name, overflow="fold", no_wrap=name in ("check", "margin", "p (Holm)"))
+            table.add_column(name, overflow="fold", no_wrap=name in ("check", "margin", "p (Holm)", "verdict"))
         for check, row in zip(v.checks, check_rows(v), strict=True):
             table.add_row(*row[:-1], Text(row[-1], style=_STYLE[check.verdict]))
         parts.append(table)
