@@ -59,12 +59,22 @@ def test_settings_normalise_lists_and_round_trip():
         (dict(double_q="yes"), "double_q", "must be true or false"),
         (dict(target="polyak", polyak_rate=0.0), "polyak_rate", "must be positive with target = 'polyak'"),
         (dict(warmup_steps=-1), "warmup_steps", "must be a non-negative integer"),
+        (dict(step_size_end=0.1), "step_size_end", r"must be in \[0.0, 0.001\], got 0.1"),
     ],
 )
 def test_settings_iv(changes, key, message):
     with pytest.raises(ConfigError, match=message) as info:
         DQNSettings(**changes)
     assert info.value.key == key
+
+
+def test_step_size_schedule_runs_from_step_size_to_step_size_end():
+    (run,) = make_runs(1, 1000, dict(SMALL, step_size=1e-3, step_size_end=1e-4), every=1000)
+    loop = dqn._Lockstep((run,), DQNSettings(**run.config))
+    first = SMALL["warmup_steps"]
+    assert loop.step_size(first, 1000) == 1e-3
+    assert loop.step_size(1000, 1000) == pytest.approx(1e-4, rel=1e-12)
+    assert loop.step_size((first + 1000) // 2, 1000) == pytest.approx(5.5e-4, rel=1e-12)
 
 
 def test_from_config_rejects_unknown_keys():

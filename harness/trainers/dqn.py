@@ -60,6 +60,9 @@ class DQNSettings:
         The discount factor gamma of the Bellman target, in [0, 1].
     step_size, adam_beta1, adam_beta2, adam_eps
         Adam's alpha, beta1, beta2 and epsilon (Kingma & Ba 2015).
+    step_size_end
+        If set, alpha falls linearly from ``step_size`` at the first gradient
+        step to this value at the end of the budget (None: constant alpha).
     memory_size
         Transitions kept in the replay memory (oldest overwritten first).
     minibatch
@@ -94,6 +97,7 @@ class DQNSettings:
     adam_beta1: float = 0.9
     adam_beta2: float = 0.999
     adam_eps: float = 1e-8
+    step_size_end: float | None = None
     memory_size: int = 50_000
     minibatch: int = 64
     warmup_steps: int = 1_000
@@ -132,6 +136,8 @@ class DQNSettings:
         for name in ("step_size", "adam_eps", "huber_delta"):
             _check_float(self, name, low=0.0, high=math.inf, open_low=True, open_high=True)
         _check_float(self, "max_grad_norm", low=0.0, high=math.inf, open_high=True)
+        if self.step_size_end is not None:
+            _check_float(self, "step_size_end", low=0.0, high=self.step_size)
         if self.target == "polyak" and self.polyak_rate == 0:
             raise ConfigError("must be positive with target = 'polyak', got 0", key="polyak_rate")
         if not isinstance(self.double_q, bool):
@@ -301,6 +307,13 @@ class _Lockstep:
         frac = min(1.0, step / s.explore_decay_steps) if s.explore_decay_steps else 1.0
         return s.explore_start + frac * (s.explore_end - s.explore_start)
 
+    def step_size(self, step: int, budget: int) -> float:
+        """Adam's alpha at environment step ``step``: linear from the first update to the budget's end."""
+        s = self.s
+        first = max(s.warmup_steps, s.minibatch, 1)
+        frac = min(1.0, max(0.0, (step - first) / max(1, budget - first)))
+        return s.step_size + frac * (s.step_size_end - s.step_size)
+
     def evaluate(self) -> list[tuple[float, ...]]:
         net, weights = self.eval_net, self.agent.weights
 
@@ -341,6 +354,8 @@ class _Lockstep:
                 obs[i] = env.reset() if (terminated or truncated) else nxt
             memory.advance()
             if step >= s.warmup_steps and step % s.update_every == 0 and memory.size >= s.minibatch:
+                if s.step_size_end is not None:
+                    agent.adam.step_size = self.step_size(step, budget)
                 agent.update(memory, self.replay_rngs)
             if s.target == "hard" and step % s.target_sync_every == 0:
                 agent.sync_target()
