@@ -33,7 +33,7 @@ class ExitCode(enum.IntEnum):
 
 
 #: Subcommand modules under ``harness.cli``, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pin", "drift")
+COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pin", "drift", "calibrate")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -1,0 +1,518 @@
+"""Calibration for the user's own task: how well can the gate work on this task's seed noise?
+
+``rlharness calibrate MANIFEST`` trains (or reuses) a large set of seeds of one
+unchanged configuration, the manifest's, splits them many times at random into
+two disjoint groups of the manifest's seed count and applies the manifest's own
+gate policy to each pair exactly as ``verify`` does (its statistical layer:
+:func:`harness.compare.compare_sets` then :func:`harness.verify.decide`). Both
+groups come from the same configuration, so every failed gate is a false alarm
+(an A/A comparison). It reports
+
+* the observed false-alarm rate of the gate with an exact binomial interval
+  (approximate: the splits share seeds, so they are not independent) against
+  the nominal ``alpha``;
+* per metric the mean and standard deviation across all seeds, the minimum
+  detectable difference at the manifest's seed count, and the seeds per group
+  needed to detect the margin (or a given target difference), from the power of
+  Welch's t-test (:mod:`harness.stats.power`) at the gate's ``alpha``, power and
+  sidedness (one-sided, as the gate tests "worse");
+* a recommendation: the metric whose minimum detectable difference is smallest
+  relative to its target difference.
+
+The calibration set (which seeds, the derived manifest ``<name>-calibration``,
+which stored runs are reused) is :mod:`harness.calibration_set`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import os
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from scipy import stats as _st
+
+from harness import stats
+from harness.cache import RunCache
+from harness.calibration_set import calibration_manifest, reuse_stored_runs
+from harness.compare import _metric_values, compare_sets
+from harness.curveset import CurveSet, random_policy_return, task_threshold
+from harness.errors import ConfigError
+from harness.policy import GatePolicy
+from harness.stats import ConfidenceInterval
+from harness.stats._validate import check_positive_int
+from harness.verify import decide
+
+__all__ = [
+    "DEFAULT_SPLITS",
+    "DEFAULT_SPLIT_SEED",
+    "WHAT_CALIBRATION_SHOWS",
+    "BinomialRate",
+    "Calibration",
+    "CalibrationPlan",
+    "MetricNoise",
+    "Recommendation",
+    "calibrate_curves",
+    "plan_calibration",
+    "run_calibration",
+    "split_groups",
+]
+
+#: Default number of A/A splits.
+DEFAULT_SPLITS = 1000
+#: Default entropy of the Generator that draws the splits (recorded in every report).
+DEFAULT_SPLIT_SEED = 20261202
+
+#: What an A/A calibration does and does not show; every report carries it.
+WHAT_CALIBRATION_SHOWS = (
+    "Calibration compares groups of seeds of one unchanged configuration: a false-alarm rate near or below alpha "
+    "says the gate is not trigger-happy on this task's seed noise. It says nothing about the gate's power against "
+    "real regressions beyond the power analysis, which assumes Welch's t-test and the spread measured here; the "
+    "interval of the rate is approximate because overlapping splits are not independent."
+)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class BinomialRate:
+    """A rate observed in repeated trials, with its exact binomial interval.
+
+    Attributes
+    ----------
+    count, trials
+        Events and trials (A/A splits).
+    estimate
+        ``count / trials``.
+    interval
+        Clopper–Pearson interval at ``confidence_level``.
+    confidence_level
+        Level of ``interval``.
+    method
+        How the interval was computed, and why it is approximate here.
+    """
+
+    count: int
+    trials: int
+    estimate: float
+    interval: ConfidenceInterval
+    confidence_level: float
+    method: str
+
+    @classmethod
+    def of(cls, count: int, trials: int, *, confidence_level: float = 0.95) -> BinomialRate:
+        """The rate of ``count`` events in ``trials`` with a Clopper–Pearson interval.
+
+        References
+        ----------
+        .. [1] Clopper, C. J. & Pearson, E. S. (1934). The use of confidence or fiducial limits
+           illustrated in the case of the binomial. Biometrika 26:404–413.
+        """
+        ci = _st.binomtest(count, trials).proportion_ci(confidence_level=confidence_level, method="exact")
+        return cls(count, trials, count / trials, ConfidenceInterval(float(ci.low), float(ci.high)), confidence_level,
+                   "Clopper–Pearson exact binomial interval (Clopper & Pearson 1934); approximate here, because "
+                   "overlapping splits are not independent trials")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class MetricNoise:
+    """The seed noise of one metric and what it lets the gate detect.
+
+    Attributes
+    ----------
+    metric
+        The metric's name.
+    mean, sd
+        Mean and standard deviation (``ddof=1``) across every calibration seed.
+    seeds
+        Calibration seeds the two are over.
+    censored
+        Seeds that never reached the threshold (``steps-to-threshold`` only; their value is
+        the last checkpoint step, and the gate then uses Gehan's test, not Welch's).
+    margin
+        The policy's equivalence margin for the metric.
+    target
+        The difference to detect: the margin, or the target difference given.
+    group_size
+        Seeds per group of the gate (the manifest's seed count).
+    detectable
+        Minimum detectable difference at ``group_size`` seeds per group (0 when every seed
+        scores the same: any difference is then detected).
+    seeds_needed
+        Seeds per group to detect ``target``; ``None`` when more than the power solver searches.
+    verdicts
+        How often each verdict came out for this metric across the A/A splits.
+    method
+        How ``detectable`` and ``seeds_needed`` were computed.
+    """
+
+    metric: str
+    mean: float
+    sd: float
+    seeds: int
+    censored: int
+    margin: float
+    target: float
+    group_size: int
+    detectable: float
+    seeds_needed: int | None
+    verdicts: Mapping[str, int]
+    method: str
+
+    @property
+    def ratio(self) -> float:
+        """``detectable / target``: below 1 the manifest's seeds detect the target difference."""
+        return self.detectable / self.target
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Recommendation:
+    """The metric with the best signal-to-noise for the task, and why in one sentence."""
+
+    metric: str
+    reason: str
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class Calibration:
+    """Everything a calibration found.
+
+    Attributes
+    ----------
+    manifest
+        The calibrated manifest's name.
+    source
+        Where the curves came from (the calibration results folder).
+    seeds, group_size, splits, split_seed
+        Calibration seeds, seeds per group, A/A splits drawn and the entropy they were drawn from.
+    policy
+        The gate policy applied to every split.
+    false_alarms
+        Splits in which the gate failed (every one a false alarm).
+    called_worse
+        Splits in which some check came out significantly worse (differs from ``false_alarms``
+        only under ``strict`` or ``ignore_small``); at most about ``alpha`` when the gate is calibrated.
+    metrics
+        Noise and power per metric, in the policy's order.
+    recommendation
+        The metric with the best signal-to-noise.
+    floor, threshold
+        Random-policy return and reward threshold the margins were sized from.
+    sources
+        How many runs were trained, taken from the cache, resumed or reused.
+    """
+
+    manifest: str
+    source: str
+    seeds: int
+    group_size: int
+    splits: int
+    split_seed: int
+    policy: GatePolicy
+    false_alarms: BinomialRate
+    called_worse: BinomialRate
+    metrics: tuple[MetricNoise, ...]
+    recommendation: Recommendation
+    floor: float | None
+    threshold: float | None
+    sources: Mapping[str, int] = dataclasses.field(default_factory=dict)
+
+    @property
+    def reading(self) -> str:
+        """One sentence: the false-alarm rate against alpha."""
+        fa = self.false_alarms
+        return (f"the gate failed {fa.count} of {fa.trials} A/A splits: false-alarm rate {fa.estimate:.3g} "
+                f"({fa.confidence_level:.0%} interval [{fa.interval.low:.3g}, {fa.interval.high:.3g}], approximate) "
+                f"against nominal alpha {self.policy.alpha:g}.")
+
+
+def split_groups(n_seeds: int, group_size: int, *, splits: int, seed: int) -> tuple[tuple[tuple[int, ...], tuple[int, ...]], ...]:
+    """Random pairs of disjoint groups of seed indices: the A/A splits.
+
+    Each split is a random permutation of ``range(n_seeds)`` from
+    ``default_rng(SeedSequence(seed))`` whose first ``group_size`` indices form the
+    first group and the next ``group_size`` the second (each sorted). The same
+    ``seed`` gives the same splits.
+
+    Examples
+    --------
+    >>> pairs = split_groups(6, 3, splits=2, seed=1)
+    >>> all(not set(a) & set(b) and len(a) == len(b) == 3 for a, b in pairs)
+    True
+    >>> pairs == split_groups(6, 3, splits=2, seed=1)
+    True
+    """
+    n = check_positive_int(n_seeds, "n_seeds", minimum=2)
+    g = check_positive_int(group_size, "group_size")
+    if 2 * g > n:
+        raise ValueError(f"`n_seeds` must be at least twice `group_size` ({g}), got {n_seeds!r}")
+    m = check_positive_int(splits, "splits")
+    rng = np.random.default_rng(np.random.SeedSequence(check_positive_int(seed, "seed", minimum=0)))
+    out = []
+    for _ in range(m):
+        order = rng.permutation(n)
+        out.append((tuple(sorted(int(i) for i in order[:g])), tuple(sorted(int(i) for i in order[g:2 * g]))))
+    return tuple(out)
+
+
+def _targets_iv(targets: Mapping[str, float] | None, metrics: Sequence[str]) -> dict[str, float]:
+    if targets is None:
+        return {}
+    if not isinstance(targets, Mapping):
+        raise TypeError(f"`targets` must map metric names to differences, got {type(targets).__name__}")
+    out = {}
+    for name, value in targets.items():
+        if name not in metrics:
+            known = ", ".join(metrics)
+            raise ValueError(f"`targets` names metric {name!r}, which the gate does not check (it checks {known}); "
+                             f"use one of those or add it to the policy's metrics")
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
+            raise ValueError(f"`targets[{name!r}]` must be a positive finite difference, got {value!r}")
+        out[name] = float(value)
+    return out
+
+
+def _power_of(sd: float, n: int, target: float, policy: GatePolicy) -> tuple[float, int | None]:
+    """Minimum detectable difference at ``n`` per group and seeds per group for ``target``, as compare.py does."""
+    if sd == 0.0:  # no spread: any difference is detected, by the fewest seeds the checks accept
+        return 0.0, 2
+    kw = {"alpha": policy.alpha, "power": policy.power, "alternative": "greater"}
+    detectable = float(stats.minimum_detectable_difference(sd, n, sd, n, **kw))
+    try:
+        needed = int(stats.seeds_needed(target, sd, sd, **kw))
+    except ValueError:  # more than the solver searches
+        needed = None
+    return detectable, needed
+
+
+def _recommend(noise: Sequence[MetricNoise]) -> Recommendation:
+    uncensored = [m for m in noise if not m.censored] or list(noise)
+    best = min(uncensored, key=lambda m: m.ratio)
+    others = [m for m in noise if m is not best]
+    if best.sd == 0.0:
+        reason = (f"every seed scores the same on {best.metric} ({best.mean:.4g}), so any change of it is detected "
+                  "with the fewest seeds.")
+    else:
+        compared = "; ".join(f"{m.metric} {m.ratio:.2f}" for m in others)
+        reason = (f"with {best.group_size} seeds per group it detects {best.ratio:.2f} times its target difference "
+                  f"({best.detectable:.4g} of {best.target:.4g}), the smallest share of all checked metrics"
+                  + (f" ({compared})" if compared else "") + ".")
+    if best.censored == 0 and len(uncensored) < len(noise):
+        reason = reason[:-1] + "; metrics with seeds that never reach the threshold were not preferred."
+    return Recommendation(best.metric, reason)
+
+
+def calibrate_curves(
+    curves: CurveSet,
+    *,
+    group_size: int,
+    policy: GatePolicy,
+    splits: int = DEFAULT_SPLITS,
+    split_seed: int = DEFAULT_SPLIT_SEED,
+    floor: float | None = None,
+    threshold: float | None = None,
+    targets: Mapping[str, float] | None = None,
+    sources: Mapping[str, int] | None = None,
+) -> Calibration:
+    """A/A calibration of the gate on a set of curves of one unchanged configuration.
+
+    Parameters
+    ----------
+    curves
+        Every calibration seed's curve.
+    group_size
+        Seeds per group (the manifest's seed count); ``curves`` needs at least twice as many.
+    policy
+        The gate policy, applied to every split as ``verify`` does (``locate`` is turned off:
+        where the curves part does not enter the gate).
+    splits, split_seed
+        Number of A/A splits and the entropy of the Generator that draws them.
+    floor, threshold
+        Random-policy return and reward threshold of the task, for margins given as a share.
+    targets
+        Differences to detect per metric (default: each metric's margin).
+    sources
+        How the runs were obtained, for the report.
+
+    Returns
+    -------
+    Calibration
+
+    References
+    ----------
+    .. [1] Welch, B. L. (1947). Biometrika 34:28–35 (the checks); Holm, S. (1979). Scand. J.
+       Statist. 6:65–70 (across metrics); Cohen, J. (1988). Statistical Power Analysis for the
+       Behavioral Sciences, 2nd ed. (power); Clopper, C. J. & Pearson, E. S. (1934).
+       Biometrika 26:404–413 (the interval of the rate).
+    """
+    if not isinstance(curves, CurveSet):
+        raise TypeError(f"`curves` must be a harness.curveset.CurveSet, got {type(curves).__name__}")
+    if not isinstance(policy, GatePolicy):
+        raise TypeError(f"`policy` must be a harness.policy.GatePolicy, got {type(policy).__name__}")
+    g = check_positive_int(group_size, "group_size", minimum=2)
+    pairs = split_groups(len(curves.runs), g, splits=splits, seed=split_seed)
+    goals = _targets_iv(targets, policy.metrics)
+    gate = dataclasses.replace(policy, locate=False)
+    threshold = policy.threshold if policy.threshold is not None else threshold
+    counts = {m: dict.fromkeys(("equivalent", "better", "worse", "inconclusive"), 0) for m in policy.metrics}
+    failed = worse = 0
+    for a, b in pairs:
+        base = dataclasses.replace(curves, runs=tuple(curves.runs[i] for i in a))
+        cand = dataclasses.replace(curves, runs=tuple(curves.runs[i] for i in b))
+        checks = compare_sets(base, cand, gate, floor=floor, threshold=threshold).checks
+        failed += not decide(checks, gate).passed
+        worse += any(c.verdict == "worse" for c in checks)
+        for c in checks:
+            counts[c.metric][c.verdict] += 1
+    noise = []
+    for metric in policy.metrics:
+        values = _metric_values(metric, curves, policy, threshold)
+        sd = float(np.std(values.values, ddof=1))
+        margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=curves.budget)
+        target = goals.get(metric, margin)
+        detectable, needed = _power_of(sd, g, target, policy)
+        noise.append(MetricNoise(
+            metric=metric, mean=float(np.mean(values.values)), sd=sd, seeds=len(curves.runs),
+            censored=int(values.censored.sum()), margin=margin, target=target, group_size=g,
+            detectable=detectable, seeds_needed=needed, verdicts=counts[metric],
+            method=(f"power of one-sided Welch's t-test (noncentral t; Cohen 1988) at alpha {policy.alpha:g}, "
+                    f"power {policy.power:g}, for the sd across all {len(curves.runs)} seeds"),
+        ))
+    m = len(pairs)
+    return Calibration(
+        manifest=curves.manifest.removesuffix("-calibration"), source=curves.label, seeds=len(curves.runs),
+        group_size=g, splits=m, split_seed=int(split_seed), policy=policy,
+        false_alarms=BinomialRate.of(failed, m), called_worse=BinomialRate.of(worse, m),
+        metrics=tuple(noise), recommendation=_recommend(noise), floor=floor, threshold=threshold,
+        sources=dict(sources or {}),
+    )
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class CalibrationPlan:
+    """A checked calibration request: what :func:`run_calibration` trains and how it splits.
+
+    Attributes
+    ----------
+    manifest
+        The calibrated manifest.
+    derived
+        The calibration manifest ``<name>-calibration`` (:func:`calibration_manifest`).
+    policy
+        The gate policy applied to every split.
+    splits, split_seed
+        Number of A/A splits and the entropy they are drawn from.
+    targets
+        Differences to detect per metric (the margin for the others).
+    floor, threshold
+        Random-policy return (``None`` unless a margin is a share of the span) and reward threshold.
+    """
+
+    manifest: Any
+    derived: Any
+    policy: GatePolicy
+    splits: int
+    split_seed: int
+    targets: Mapping[str, float]
+    floor: float | None
+    threshold: float | None
+
+
+def plan_calibration(
+    manifest: Any,
+    *,
+    seeds: int | None = None,
+    splits: int = DEFAULT_SPLITS,
+    split_seed: int = DEFAULT_SPLIT_SEED,
+    targets: Mapping[str, float] | None = None,
+    policy: GatePolicy | None = None,
+) -> CalibrationPlan:
+    """Check a calibration request before anything runs or is written.
+
+    Parameters
+    ----------
+    manifest
+        A ``harness.manifest.Manifest``.
+    seeds
+        Calibration seeds (default :data:`SEED_FACTOR` times the manifest's; at least twice).
+    splits, split_seed, targets
+        As :func:`calibrate_curves`.
+    policy
+        The gate policy; the manifest's ``[check]`` by default.
+
+    Raises
+    ------
+    ValueError
+        Too few seeds, a bad split count or seed, a target for a metric the gate does not
+        check, or a margin that cannot be sized (a ``ConfigError`` naming the key).
+    """
+    policy = policy or manifest.check
+    derived = calibration_manifest(manifest, seeds=seeds)
+    goals = _targets_iv(targets, policy.metrics)
+    threshold = task_threshold(manifest.task) if policy.threshold is None else policy.threshold
+    floor = _floor_if_needed(manifest, policy, threshold)
+    return CalibrationPlan(manifest, derived, policy, check_positive_int(splits, "splits"),
+                           check_positive_int(split_seed, "split_seed", minimum=0), goals, floor, threshold)
+
+
+def run_calibration(
+    plan: CalibrationPlan,
+    *,
+    results_dir: str | os.PathLike | None = None,
+    stored_dir: str | os.PathLike | None = None,
+    cache: RunCache | str | os.PathLike | None = None,
+    use_cache: bool = True,
+    **run_options: Any,
+) -> Calibration:
+    """Run (or reuse) the calibration seeds of a plan and calibrate the gate on them.
+
+    Parameters
+    ----------
+    plan
+        From :func:`plan_calibration`.
+    results_dir
+        The calibration's results folder (default ``results/<name>-calibration/``).
+    stored_dir
+        The manifest's own results folder, whose runs are reused (default ``results/<name>/``).
+    cache, use_cache, run_options
+        As :func:`harness.runner.run_specs` (``workers``, ``executor``, ``on_event``, ...).
+
+    Raises
+    ------
+    RunFailedError
+        If any calibration run failed (never calibrated on fewer seeds than asked).
+    """
+    from harness.executors.work import installed_versions
+    from harness.runner import DEFAULT_RESULTS_DIR, run_manifest
+
+    manifest, derived = plan.manifest, plan.derived
+    folder = Path(results_dir) if results_dir is not None else Path(DEFAULT_RESULTS_DIR) / derived.name
+    stored = Path(stored_dir) if stored_dir is not None else Path(DEFAULT_RESULTS_DIR) / manifest.name
+    run_cache = (cache if isinstance(cache, RunCache) else RunCache(cache)) if use_cache else None
+    folder.mkdir(parents=True, exist_ok=True)
+    reused = reuse_stored_runs(manifest, derived, folder=folder, stored=(stored,), cache=run_cache,
+                               versions=installed_versions())
+    outcome = run_manifest(derived, results_dir=folder, cache=run_cache, use_cache=use_cache, **run_options)
+    tally = {s: sum(v == s for v in outcome.sources.values()) for s in ("trained", "cache", "resumed")}
+    tally["resumed"] -= reused
+    tally["reused"] = reused
+    curves = CurveSet.from_results(outcome.results, label=f"calibration results in {folder}",
+                                   config=derived.resolved_config(), expected=len(derived.seeds))
+    return calibrate_curves(curves, group_size=len(manifest.seeds), policy=plan.policy, splits=plan.splits,
+                            split_seed=plan.split_seed, floor=plan.floor, threshold=plan.threshold,
+                            targets=plan.targets, sources=tally)
+
+
+def _floor_if_needed(manifest: Any, policy: GatePolicy, threshold: float | None) -> float | None:
+    """The random-policy return when a margin is a share of the span; sizing every margin checks it can be."""
+    try:
+        for metric in policy.metrics:
+            policy.margin_for(metric, floor=None, threshold=threshold, budget=manifest.budget)
+        return None
+    except ConfigError:
+        floor = random_policy_return(manifest.task, manifest.evaluation)
+    for metric in policy.metrics:  # raises, naming the fix, when even the floor cannot size it
+        policy.margin_for(metric, floor=floor, threshold=threshold, budget=manifest.budget)
+    return floor
+
