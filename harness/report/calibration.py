@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from rich import box
 from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
@@ -11,26 +12,36 @@ from rich.text import Text
 from harness.calibrate import WHAT_CALIBRATION_SHOWS, Calibration, MetricNoise
 from harness.report._rows import num
 
-__all__ = ["METRIC_HEADER", "CalibrationReport", "calibration_lines", "metric_rows", "render_calibration_markdown"]
+__all__ = ["ROWS_NOTE", "CalibrationReport", "calibration_lines", "metric_rows", "render_calibration_markdown"]
 
-METRIC_HEADER = ("metric", "mean ± sd (seeds)", "margin", "target", "detectable", "detectable / target",
-                 "seeds per group for target", "A/A verdicts")
-
-
-def _verdicts(m: MetricNoise) -> str:
-    total = sum(m.verdicts.values())
-    return ", ".join(f"{v} {n / total:.0%}" for v, n in m.verdicts.items() if n)
+def _share(m: MetricNoise, verdict: str) -> str:
+    return f"{m.verdicts.get(verdict, 0) / sum(m.verdicts.values()):.0%}"
 
 
 def metric_rows(cal: Calibration) -> list[tuple[str, ...]]:
-    """One row per metric, in :data:`METRIC_HEADER` order."""
-    rows = []
-    for m in cal.metrics:
-        censored = f", {m.censored} never reached" if m.censored else ""
-        needed = str(m.seeds_needed) if m.seeds_needed is not None else "more than 10,000,000"
-        rows.append((m.metric, f"{num(m.mean)} ± {num(m.sd, 3)} ({m.seeds}{censored})", num(m.margin), num(m.target),
-                     num(m.detectable), f"{m.ratio:.2f}", needed, _verdicts(m)))
+    """The metrics table, one metric per column (it fits 80 columns): a header row, then one row per quantity."""
+    ms = cal.metrics
+    n = cal.group_size
+    rows = [("", *(m.metric for m in ms)),
+            ("mean", *(num(m.mean) for m in ms)),
+            ("sd", *(num(m.sd, 3) for m in ms)),
+            ("margin", *(num(m.margin) for m in ms)),
+            ("target difference", *(num(m.target) for m in ms)),
+            (f"detectable, {n} seeds per group", *(num(m.detectable, 3) for m in ms)),
+            ("detectable / target", *(num(m.ratio, 3) for m in ms)),
+            ("seeds per group for target", *(str(m.seeds_needed) if m.seeds_needed is not None else ">1e7" for m in ms)),
+            ("A/A equivalent", *(_share(m, "equivalent") for m in ms)),
+            ("A/A worse", *(_share(m, "worse") for m in ms))]
     return rows
+
+
+ROWS_NOTE = (
+    "mean, sd: across every calibration seed; detectable: the smallest true difference detected with the gate's "
+    "power by its one-sided Welch test at its alpha with the manifest's seeds per group (Holm across several metrics "
+    "makes the gate's own figure a little larger); target difference: the margin unless --target-difference is "
+    "given (below 1, detectable / target says the manifest's seeds suffice); A/A equivalent, A/A worse: share of "
+    "splits with that verdict."
+)
 
 
 def calibration_lines(cal: Calibration) -> dict[str, str]:
@@ -44,16 +55,17 @@ def calibration_lines(cal: Calibration) -> dict[str, str]:
         "runs": f"runs: {runs}; curves: {cal.source}",
         "alarms": "false alarms: " + cal.reading,
         "interval": f"interval: {fa.method}.",
-        "power": (f"detectable: the smallest true difference detected with power {p.power:g} by the one-sided Welch "
-                  f"test at alpha {p.alpha:g} with {cal.group_size} seeds per group (Holm across "
-                  f"{len(p.metrics)} metric{'s' if len(p.metrics) != 1 else ''} makes the gate's own figure a little "
-                  "larger); target: the margin unless --target-difference is given."),
+        "power": f"power {p.power:g}, alpha {p.alpha:g}, {cal.group_size} seeds per group. " + ROWS_NOTE,
         "recommendation": f"recommended metric: {cal.recommendation.metric} — {cal.recommendation.reason}",
         "shows": WHAT_CALIBRATION_SHOWS,
     }
     if cw.count != fa.count:
         lines["worse"] = (f"a check was significantly worse in {cw.count} of {cw.trials} splits ({cw.estimate:.3g}); "
                           "the gate's failures differ because of the policy's strict or ignore_small setting.")
+    censored = [f"{m.metric}: {m.censored} of {m.seeds} seeds never reach the threshold" for m in cal.metrics if m.censored]
+    if censored:
+        lines["censored"] = ("; ".join(censored) + ": the gate compares them with Gehan's test, and the power figures, "
+                             "which assume Welch's t-test on their censoring steps, are approximate.")
     if p.strict:
         lines["strict"] = ("the policy is strict: an inconclusive check fails the gate, so its A/A failure rate is not "
                            "bounded by alpha; more seeds per group lower it.")
@@ -75,12 +87,17 @@ class CalibrationReport:
         parts.append(Text(lines["alarms"], style="green" if calibrated else "bold red"))
         parts.extend(Text(lines[k]) for k in ("worse", "strict") if k in lines)
         parts.append(Text(lines["interval"], style="dim"))
-        table = Table(title="noise and power per metric", title_justify="left", show_edge=False, pad_edge=False)
-        for name in METRIC_HEADER:
-            table.add_column(name, overflow="fold", no_wrap=name in ("metric", "detectable / target"))
-        for row in metric_rows(cal):
+        table = Table(title="noise and power per metric", title_justify="left", box=box.SIMPLE_HEAD,
+                      show_edge=False, pad_edge=False, collapse_padding=True)
+        header, *rows = metric_rows(cal)
+        for i, name in enumerate(header):
+            table.add_column(name, no_wrap=i == 0, justify="left" if i == 0 else "right")
+        for row in rows:
             table.add_row(*row)
-        parts += [table, Text(lines["power"], style="dim"), Text(lines["recommendation"], style="bold"),
+        parts.append(table)
+        if "censored" in lines:
+            parts.append(Text(lines["censored"]))
+        parts += [Text(lines["power"], style="dim"), Text(lines["recommendation"], style="bold"),
                   Text(lines["shows"], style="italic")]
         return Group(*parts)
 
@@ -102,6 +119,8 @@ def render_calibration_markdown(calibration: Calibration) -> str:
            f"- **{lines['alarms']}**"]
     out += [f"- {lines[k]}" for k in ("worse", "strict") if k in lines]
     out += [f"- {lines['interval']}", "", "### Noise and power per metric", ""]
-    out += _table(METRIC_HEADER, metric_rows(cal))
+    header, *rows = metric_rows(cal)
+    out += _table(header, rows)
+    out += [lines["censored"], ""] if "censored" in lines else []
     out += [lines["power"], "", f"**{lines['recommendation']}**", "", f"_{lines['shows']}_", ""]
     return "\n".join(out)
