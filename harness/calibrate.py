@@ -181,7 +181,7 @@ class Calibration:
     Attributes
     ----------
     manifest
-        The calibrated manifest's name.
+        The calibrated manifest's name (the curve set's, without its ``-calibration`` suffix).
     source
         Where the curves came from (the calibration results folder).
     seeds, group_size, splits, split_seed
@@ -451,6 +451,9 @@ def plan_calibration(
     derived = calibration_manifest(manifest, seeds=seeds)
     goals = _targets_iv(targets, policy.metrics)
     threshold = task_threshold(manifest.task) if policy.threshold is None else policy.threshold
+    if threshold is None and "steps-to-threshold" in policy.metrics:
+        raise ConfigError(f"metric 'steps-to-threshold' needs a threshold, and {manifest.task.id!r} registers no "
+                          "reward threshold with gymnasium: set `threshold` in [check]", key="check.threshold")
     floor = _floor_if_needed(manifest, policy, threshold)
     return CalibrationPlan(manifest, derived, policy, check_positive_int(splits, "splits"),
                            check_positive_int(split_seed, "split_seed", minimum=0), goals, floor, threshold)

@@ -8,7 +8,8 @@ power figures are only checked to be that function's values for the measured spr
 
 from __future__ import annotations
 
-import dataclasses
+import doctest
+import importlib
 import json
 import textwrap
 from io import StringIO
@@ -142,6 +143,14 @@ def test_plan_refuses_a_target_for_an_unchecked_metric():
         plan_calibration(manifest, targets={"steps-to-threshold": 100.0})
 
 
+def test_plan_needs_a_threshold_for_steps_to_threshold():
+    # CliffWalking-v1 registers no reward threshold (gymnasium's registry, read by the manifest loader).
+    text = MANIFEST.format(seeds="count = 3\nroot = 7").replace('"CartPole-v1"', '"CliffWalking-v1"\nepisode_step_limit = 50')
+    manifest = parse_manifest(text.replace("margin = 0.5", 'margin = 0.5\nmetrics = ["steps-to-threshold"]'))
+    with pytest.raises(ValueError, match=r"\[check.threshold\]: metric 'steps-to-threshold' needs a threshold"):
+        plan_calibration(manifest)
+
+
 # --- the analysis -----------------------------------------------------------------------------
 
 def test_false_alarm_rate_is_near_alpha_on_exchangeable_seeds():
@@ -273,3 +282,9 @@ def test_cli_failed_runs_exit_3(project):
     code, out = cli("calibrate", "bad.toml", "--seeds", "6", "--splits", "10", "--workers", "2")
     assert code == ExitCode.RUNS_FAILED, out
     assert "seed 7/4" in out and "toy trainer broke on purpose" in out
+
+
+@pytest.mark.parametrize("module", ["harness.calibrate", "harness.calibration_set"])
+def test_docstring_examples(module):
+    result = doctest.testmod(importlib.import_module(module))
+    assert result.attempted > 0 and result.failed == 0
