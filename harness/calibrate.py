@@ -227,7 +227,10 @@ class Calibration:
                 f"against nominal alpha {self.policy.alpha:g}.")
 
 
-def split_groups(n_seeds: int, group_size: int, *, splits: int, seed: int) -> tuple[tuple[tuple[int, ...], tuple[int, ...]], ...]:
+Split = tuple[tuple[int, ...], tuple[int, ...]]
+
+
+def split_groups(n_seeds: int, group_size: int, *, splits: int, seed: int) -> tuple[Split, ...]:
     """Random pairs of disjoint groups of seed indices: the A/A splits.
 
     Each split is a random permutation of ``range(n_seeds)`` from

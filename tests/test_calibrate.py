@@ -145,7 +145,8 @@ def test_plan_refuses_a_target_for_an_unchecked_metric():
 
 def test_plan_needs_a_threshold_for_steps_to_threshold():
     # CliffWalking-v1 registers no reward threshold (gymnasium's registry, read by the manifest loader).
-    text = MANIFEST.format(seeds="count = 3\nroot = 7").replace('"CartPole-v1"', '"CliffWalking-v1"\nepisode_step_limit = 50')
+    text = MANIFEST.format(seeds="count = 3\nroot = 7")
+    text = text.replace('"CartPole-v1"', '"CliffWalking-v1"\nepisode_step_limit = 50')
     manifest = parse_manifest(text.replace("margin = 0.5", 'margin = 0.5\nmetrics = ["steps-to-threshold"]'))
     with pytest.raises(ValueError, match=r"\[check.threshold\]: metric 'steps-to-threshold' needs a threshold"):
         plan_calibration(manifest)

@@ -29,7 +29,7 @@ def metric_rows(cal: Calibration) -> list[tuple[str, ...]]:
             ("target difference", *(num(m.target) for m in ms)),
             (f"detectable, {n} seeds per group", *(num(m.detectable, 3) for m in ms)),
             ("detectable / target", *(num(m.ratio, 3) for m in ms)),
-            ("seeds per group for target", *(str(m.seeds_needed) if m.seeds_needed is not None else ">1e7" for m in ms)),
+            ("seeds per group for target", *(">1e7" if m.seeds_needed is None else str(m.seeds_needed) for m in ms)),
             ("A/A equivalent", *(_share(m, "equivalent") for m in ms)),
             ("A/A worse", *(_share(m, "worse") for m in ms))]
     return rows
@@ -62,7 +62,8 @@ def calibration_lines(cal: Calibration) -> dict[str, str]:
     if cw.count != fa.count:
         lines["worse"] = (f"a check was significantly worse in {cw.count} of {cw.trials} splits ({cw.estimate:.3g}); "
                           "the gate's failures differ because of the policy's strict or ignore_small setting.")
-    censored = [f"{m.metric}: {m.censored} of {m.seeds} seeds never reach the threshold" for m in cal.metrics if m.censored]
+    censored = [f"{m.metric}: {m.censored} of {m.seeds} seeds never reach the threshold"
+                for m in cal.metrics if m.censored]
     if censored:
         lines["censored"] = ("; ".join(censored) + ": the gate compares them with Gehan's test, and the power figures, "
                              "which assume Welch's t-test on their censoring steps, are approximate.")
