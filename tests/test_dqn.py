@@ -193,7 +193,7 @@ def test_rejects_tasks_without_box_observations():
 
 
 def test_lockstep_size_prefers_stacking_narrow_networks():
-    assert lockstep_size(DQNSettings(hidden=(128, 128))) == 1
+    assert lockstep_size(DQNSettings(hidden=(256, 256))) == 1
     assert lockstep_size(DQNSettings(hidden=(64, 64))) >= 2
     assert lockstep_size(DQNSettings(hidden=(32,))) >= lockstep_size(DQNSettings(hidden=(64, 64)))
 

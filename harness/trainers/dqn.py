@@ -234,14 +234,17 @@ def _pick(values: np.ndarray, index: np.ndarray) -> np.ndarray:
 def lockstep_size(settings: DQNSettings) -> int:
     """How many seeds one worker should train in lockstep for this network size.
 
-    Stacking seeds pays while per-call NumPy overhead dominates the matmuls,
-    i.e. for narrow networks; measured with ``benchmarks/bench_dqn.py`` on the
-    development machine (see DEVELOPERS.md, "DQN and speed").
+    Stacking pays while per-call NumPy overhead is large next to the matmuls.
+    Measured with ``benchmarks/bench_dqn.py`` on the development machine (2
+    cores, OpenBLAS SkylakeX kernel, shared with other jobs): total env-steps/s
+    at K = 4 vs K = 1 was 1.5-1.9x at 4-64-64-2 and 1.4x at 4-128-128-2; K = 8
+    and 16 gained a little more but leave workers unbalanced when a manifest's
+    seeds are not a multiple of K per worker. Wider networks are left solo.
     """
     widest = max(settings.hidden)
     if widest <= 32:
         return 8
-    if widest <= 64:
+    if widest <= 128:
         return 4
     return 1
 
