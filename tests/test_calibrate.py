@@ -289,3 +289,16 @@ def test_cli_failed_runs_exit_3(project):
 def test_docstring_examples(module):
     result = doctest.testmod(importlib.import_module(module))
     assert result.attempted > 0 and result.failed == 0
+
+
+def test_cli_reuses_the_run_cache_and_an_earlier_calibration(project):
+    code, out = cli("run", "toy.toml", "--workers", "2", "--results", "elsewhere")
+    assert code == ExitCode.OK, out
+    code, out = cli("calibrate", "toy.toml", "--seeds", "6", "--splits", "20", "--workers", "2")
+    assert code == ExitCode.OK and "runs: 3 trained, 3 reused" in out  # the manifest's seeds from the cache
+    first = (project / "results/toy-calibration/seed-7-4.json").read_text()
+    code, out = cli("calibrate", "toy.toml", "--seeds", "8", "--splits", "20", "--workers", "2")
+    assert code == ExitCode.OK and "runs: 2 trained, 6 reused" in out  # another seed count: another config hash
+    again = json.loads((project / "results/toy-calibration/seed-7-4.json").read_text())
+    assert again["curve"] == json.loads(first)["curve"]
+    assert again["spec"]["config_hash"] != json.loads(first)["spec"]["config_hash"]
