@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import os
 import shutil
 import textwrap
 import tomllib
+from importlib.metadata import entry_points
 from io import StringIO
 from pathlib import Path
 
@@ -14,6 +16,11 @@ from rich.console import Console
 from harness.cli import ExitCode, main
 
 pytest_plugins = ["pytester"]
+
+#: With rl-harness installed, pytest loads the plugin through its entry point; otherwise name it.
+INSTALLED = not os.environ.get("PYTEST_DISABLE_PLUGIN_AUTOLOAD") and any(
+    e.name == "rlharness" and e.value == "harness.pytest_plugin" for e in entry_points(group="pytest11"))
+LOAD = () if INSTALLED else ("-p", "harness.pytest_plugin")
 
 MANIFEST = """\
 name = "{name}"
@@ -69,7 +76,7 @@ def project(recorded, pytester, monkeypatch):
 
 
 def run(pytester, *args):
-    return pytester.runpytest("-p", "harness.pytest_plugin", "--rlharness-workers", "1", *args)
+    return pytester.runpytest(*LOAD, "--rlharness-workers", "1", *args)
 
 
 def test_marker_passes_and_summary_says_what_a_pass_means(project):
@@ -137,12 +144,14 @@ def test_bad_input_fails_with_the_fix(project):
 
 
 def test_options_and_marker_are_registered(pytester):
-    result = pytester.runpytest("-p", "harness.pytest_plugin", "--help")
+    result = pytester.runpytest(*LOAD, "--help")
     result.stdout.fnmatch_lines(["*rl-harness learning-performance gates*", "*--rlharness-baselines=DIR*"])
-    result = pytester.runpytest("-p", "harness.pytest_plugin", "--markers")
+    result = pytester.runpytest(*LOAD, "--markers")
     result.stdout.fnmatch_lines(["@pytest.mark.rlharness(manifest, **policy):*"])
 
 
-def test_entry_point_is_declared():
+def test_entry_point_is_declared(pytester):
     pyproject = tomllib.loads((Path(__file__).parents[1] / "pyproject.toml").read_text())
     assert pyproject["project"]["entry-points"]["pytest11"]["rlharness"] == "harness.pytest_plugin"
+    if INSTALLED:  # then pytest must find the plugin by itself, without -p
+        pytester.runpytest("--help").stdout.fnmatch_lines(["*--rlharness-baselines=DIR*"])
