@@ -13,7 +13,10 @@ Prints, all measured in this one run, with BLAS pinned to one thread:
 * the cost of subnormal Adam moments (flushing off vs on);
 * peak memory per seed (tracemalloc: NumPy buffers and Python objects).
 
-Default is a short run (other people share the cores); ``--full`` trains longer.
+Rates are per second of this process's CPU time (``time.process_time``), the
+per-core figure on a machine shared with other jobs; training rates also show
+wall-clock seconds. Default is a short run (other people share the cores);
+``--full`` trains longer.
 
     python benchmarks/bench_dqn.py            # ~1-2 minutes
     python benchmarks/bench_dqn.py --full     # several minutes
@@ -50,39 +53,43 @@ def runs(k: int, hidden: tuple[int, ...], budget: int, **extra) -> list[RunSpec]
     ]
 
 
-def training_rate(k: int, hidden: tuple[int, ...], steps: int, **extra) -> float:
-    """Total env-steps/s of K seeds in lockstep, timed from the first checkpoint to the last."""
+def training_rate(k: int, hidden: tuple[int, ...], steps: int, **extra) -> tuple[float, float]:
+    """Total env-steps/s of K seeds in lockstep, timed from the first checkpoint to the last.
+
+    Returns the rate per wall-clock second and per second of this process's CPU time (on a
+    shared machine the second is the per-core figure; they agree on an idle one).
+    """
     it = iter(dqn.train_lockstep(runs(k, hidden, steps, **extra)))
     next(it)  # step-0 evaluation
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     for _ in it:
         pass
-    return k * steps / (time.perf_counter() - t0)
+    return k * steps / (time.perf_counter() - t0), k * steps / (time.process_time() - c0)
 
 
 def raw_rate(steps: int) -> tuple[float, float]:
-    """Env-steps/s of CartPole-v1 under random actions: gymnasium.make'd env, and LeanEnv."""
+    """Env-steps per CPU-second of CartPole-v1 under random actions: gymnasium.make'd env, and LeanEnv."""
     actions = np.random.default_rng(0).integers(0, 2, size=steps).tolist()
     env = make_env(TASK)
     env.reset(seed=0)
-    t0 = time.perf_counter()
+    c0 = time.process_time()
     for a in actions:
         _, _, term, trunc, _ = env.step(a)
         if term or trunc:
             env.reset()
-    wrapped = steps / (time.perf_counter() - t0)
+    wrapped = steps / (time.process_time() - c0)
     lean = LeanEnv(TASK)
     lean.reset(seed=0)
-    t0 = time.perf_counter()
+    c0 = time.process_time()
     for a in actions:
         _, _, term, trunc = lean.step(a)
         if term or trunc:
             lean.reset()
-    return wrapped, steps / (time.perf_counter() - t0)
+    return wrapped, steps / (time.process_time() - c0)
 
 
 def update_cost(hidden: tuple[int, ...], n: int) -> tuple[float, float, float]:
-    """(µs per update, matmul FLOPs per update, µs the update's matmuls take alone)."""
+    """(CPU µs per update, matmul FLOPs per update, CPU µs the update's matmuls take alone)."""
     settings = dqn.DQNSettings(hidden=hidden, minibatch=MINIBATCH)
     rng = np.random.default_rng(1)
     agent = dqn._Agent(settings, 4, 2, [rng])
@@ -94,10 +101,10 @@ def update_cost(hidden: tuple[int, ...], n: int) -> tuple[float, float, float]:
     rngs = [np.random.default_rng(2)]
     for _ in range(50):
         agent.update(memory, rngs)
-    t0 = time.perf_counter()
+    c0 = time.process_time()
     for _ in range(n):
         agent.update(memory, rngs)
-    per_update = (time.perf_counter() - t0) / n * 1e6
+    per_update = (time.process_time() - c0) / n * 1e6
     shapes = matmul_shapes(Layout((4, *hidden, 2)), MINIBATCH, joint=agent.joint)
     flops = sum(2 * m * kk * nn for m, kk, nn in shapes)
     alone = 0.0
@@ -107,10 +114,10 @@ def update_cost(hidden: tuple[int, ...], n: int) -> tuple[float, float, float]:
         out = np.empty((1, m, nn), np.float32)
         reps = 2000
         np.matmul(a, b, out=out)
-        t0 = time.perf_counter()
+        c0 = time.process_time()
         for _ in range(reps):
             np.matmul(a, b, out=out)
-        alone += (time.perf_counter() - t0) / reps * 1e6
+        alone += (time.process_time() - c0) / reps * 1e6
     return per_update, flops, alone
 
 
@@ -140,10 +147,10 @@ def subnormal_cost(n: int) -> tuple[float, float]:
         g[:, ::2] = 0.0  # dead units: exactly zero gradients from now on
         for _ in range(810):  # |m| ~ 1e-3 * 0.9**810 < 1.2e-38: the dead half is subnormal for ~140 steps
             adam.step(p, g)
-        t0 = time.perf_counter()
+        c0 = time.process_time()
         for _ in range(n):
             adam.step(p, g)
-        out.append((time.perf_counter() - t0) / n * 1e6)
+        out.append((time.process_time() - c0) / n * 1e6)
     return out[0], out[1]
 
 
@@ -170,27 +177,29 @@ def main() -> None:
                 if i["user_api"] == "blas"]
         print(f"BLAS (pinned): {blas}; steps per measurement {steps}, median of {repeats}")
         wrapped, lean = raw_rate(50_000)
-        print(f"raw CartPole-v1 env-steps/s: gymnasium.make {wrapped:,.0f}, LeanEnv {lean:,.0f}")
+        print(f"raw CartPole-v1 env-steps per CPU-second: gymnasium.make {wrapped:,.0f}, LeanEnv {lean:,.0f}")
         print()
         print("solo (K=1), one update per env step, minibatch 64, Double DQN, hard target sync")
         for hidden in ((128, 128), (64, 64)):
-            rate = statistics.median(training_rate(1, hidden, steps) for _ in range(repeats))
+            rates = [training_rate(1, hidden, steps) for _ in range(repeats)]
+            wall = statistics.median(r[0] for r in rates)
+            rate = statistics.median(r[1] for r in rates)
             us, flops, alone = update_cost(hidden, 1000)
             name = "-".join(map(str, (4, *hidden, 2)))
-            print(f"  {name}: {rate:,.0f} env-steps/s = {rate / lean:.3f} x LeanEnv raw rate "
-                  f"({rate / wrapped:.3f} x gymnasium.make)")
+            print(f"  {name}: {rate:,.0f} env-steps per CPU-second ({wall:,.0f} per wall second) = "
+                  f"{rate / lean:.3f} x LeanEnv raw rate ({rate / wrapped:.3f} x gymnasium.make)")
             print(f"    update {us:.0f} µs; matmul floor: {flops / 1e6:.2f} MFLOP/update, those matmuls alone "
                   f"{alone:.0f} µs ({flops / alone / 1e3:.0f} GFLOP/s) -> update = {us / alone:.2f} x floor")
         print()
-        print("lockstep: K seeds in one process (total and per-seed env-steps/s)")
+        print("lockstep: K seeds in one process (total and per-seed env-steps per CPU-second)")
         for hidden in ((128, 128), (64, 64)):
             name = "-".join(map(str, (4, *hidden, 2)))
             base = None
             for k in (1, 4, 8, 16):
-                total = training_rate(k, hidden, steps)
+                wall, total = training_rate(k, hidden, steps)
                 base = base or total
                 print(f"  {name} K={k:2d}: total {total:7,.0f}/s  per seed {total / k:7,.0f}/s  "
-                      f"({total / base:.2f} x K=1)")
+                      f"({total / base:.2f} x K=1; wall {wall:7,.0f}/s)")
         print()
         flushed_off, flushed_on = subnormal_cost(100)
         print(f"Adam step, P=17,410, half the moments subnormal: {flushed_off:.0f} µs unflushed vs "
