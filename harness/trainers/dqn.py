@@ -266,14 +266,14 @@ def train_lockstep(runs: Sequence[RunSpec]) -> Iterator[tuple[Checkpoint, ...]]:
     if not runs:
         raise ValueError("`runs` must hold at least one RunSpec, got none")
     first = runs[0]
+    settings = DQNSettings.from_config(first.config)
     for r in runs[1:]:
-        same = (r.task, r.trainer, dict(r.config), r.budget, r.evaluation)
-        if same != (first.task, first.trainer, dict(first.config), first.budget, first.evaluation):
+        same = (r.task, r.trainer, DQNSettings.from_config(r.config), r.budget, r.evaluation)
+        if same != (first.task, first.trainer, settings, first.budget, first.evaluation):
             raise ValueError(
                 f"`runs` must differ only in their seeds; run {r.index} ({r.seed.label}) differs "
                 f"from run {first.index} ({first.seed.label}) in task, config, budget or evaluation"
             )
-    settings = DQNSettings.from_config(first.config)
     return _Lockstep(runs, settings).run()
 
 
