@@ -43,10 +43,11 @@ from filelock import FileLock, Timeout
 from harness.cache import RunCache
 from harness.errors import ResultsError
 from harness.executors import Executor, RunEvent, Task, WorkerResult, make_executor
-from harness.executors.work import installed_versions, lockstep_size
+from harness.executors.work import lockstep_size, run_versions
 from harness.spec import RunSpec
 from harness.store import (
     INDEX_FILE,
+    TRAINER_SOURCE,
     ResultSet,
     RunRecord,
     read_index,
@@ -265,7 +266,9 @@ class _Run:
 
     def accept(self, result: WorkerResult) -> None:
         spec = self.specs[result.index]
-        versions = result.versions if result.versions is not None else self.versions
+        versions = self.versions
+        if result.versions is not None:  # the worker's installed versions; the source is the parent's
+            versions = {**result.versions, TRAINER_SOURCE: self.versions[TRAINER_SOURCE]}
         if result.curve is not None:
             record = RunRecord(spec, "ok", result.curve, None, versions)
         else:
@@ -368,7 +371,8 @@ def run_specs(
         cache = cache if isinstance(cache, RunCache) else RunCache(cache)
     else:
         cache = None
-    run = _Run(specs, folder, dict(installed_versions()), cache, on_event)
+    search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
+    run = _Run(specs, folder, run_versions(specs[0], search_path=search_path), cache, on_event)
     manifest, config_hash = specs[0].manifest, specs[0].config_hash
     with FileLock(str(folder / _LOCK_FILE)):
         _drop_stale_index(folder, manifest, config_hash)
@@ -381,7 +385,6 @@ def run_specs(
         else:
             run.from_cache(spec)
     todo = [s for s in specs if s.index not in run.records]
-    search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
     k = lockstep_size(todo[0], search_path=search_path) if todo else 1  # resolves the trainer: fails early
     if todo:  # files are about to change: until the new index is written, the folder has none
         with FileLock(str(folder / _LOCK_FILE)):

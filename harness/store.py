@@ -42,6 +42,7 @@ __all__ = [
     "RESULTS_SCHEMA",
     "ResultSet",
     "RunRecord",
+    "TRAINER_SOURCE",
     "atomic_write_text",
     "read_index",
     "read_record",
@@ -54,6 +55,10 @@ __all__ = [
     "write_record",
     "write_results",
 ]
+
+#: Key in ``RunRecord.versions`` of the trainer's source fingerprint
+#: (``harness.trainers.registry.source_fingerprint``): a run of other code is never reused.
+TRAINER_SOURCE = "trainer_source"
 
 RECORD_SCHEMA = "rl-harness/run/1"
 RESULTS_SCHEMA = "rl-harness/results/1"
@@ -77,7 +82,8 @@ class RunRecord:
     failure
         Why the run failed (the traceback for exceptions); ``None`` when it succeeded.
     versions
-        The installed versions the run trained with (see ``harness.pins``).
+        The installed versions the run trained with (see ``harness.pins``), and under
+        :data:`TRAINER_SOURCE` the fingerprint of the trainer's source code.
     """
 
     spec: RunSpec

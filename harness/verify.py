@@ -36,6 +36,7 @@ from harness.curveset import CurveSet, random_policy_return, task_threshold
 from harness.errors import BaselineError, ResultsError
 from harness.policy import GatePolicy, PublishedReference
 from harness.spec import canonical_json
+from harness.store import TRAINER_SOURCE
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
@@ -90,6 +91,7 @@ class Provenance:
     candidate_hash: str
     changes: tuple[ConfigChange, ...]
     drift: tuple[VersionChange, ...]
+    source_changed: bool = False
 
     @property
     def same_config(self) -> bool:
@@ -108,7 +110,9 @@ class Provenance:
                       + ", ".join(c.key for c in self.changes[:5]) + (", ..." if len(self.changes) > 5 else "") + ")")
         versions = ("same installed versions" if not self.drift else
                     "version drift in " + ", ".join(d.name for d in self.drift))
-        return f"{config}; {versions}."
+        source = ("; the trainer's source code changed since the baseline (the exact check tells whether "
+                  "its numbers did)" if self.source_changed else "")
+        return f"{config}; {versions}{source}."
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -203,10 +207,14 @@ def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
     old, new = (_flatten(json.loads(canonical_json(side.config))) for side in (baseline, candidate))
     changes = tuple(ConfigChange(k, old.get(k), new.get(k)) for k in sorted(old.keys() | new.keys())
                     if old.get(k) != new.get(k))
+    # The trainer's source fingerprint is not an installed version: a refactor changes it, and
+    # a refactor is exactly where the exact check must run.
     drift = tuple(VersionChange(k, baseline.versions.get(k), candidate.versions.get(k))
                   for k in sorted(baseline.versions.keys() | candidate.versions.keys())
-                  if baseline.versions.get(k) != candidate.versions.get(k))
-    return Provenance(baseline.label, candidate.label, baseline.config_hash, candidate.config_hash, changes, drift)
+                  if k != TRAINER_SOURCE and baseline.versions.get(k) != candidate.versions.get(k))
+    source_changed = baseline.versions.get(TRAINER_SOURCE) != candidate.versions.get(TRAINER_SOURCE)
+    return Provenance(baseline.label, candidate.label, baseline.config_hash, candidate.config_hash, changes, drift,
+                      source_changed)
 
 
 def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance, policy: GatePolicy) -> ExactCheck:

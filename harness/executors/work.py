@@ -23,9 +23,10 @@ from threadpoolctl import threadpool_limits
 from harness.curves import Checkpoint, LearningCurve
 from harness.pins import installed_pins
 from harness.spec import RunSpec
-from harness.trainers.registry import resolve_trainer
+from harness.store import TRAINER_SOURCE
+from harness.trainers.registry import resolve_trainer, source_fingerprint
 
-__all__ = ["installed_versions", "lockstep_size", "run_task"]
+__all__ = ["installed_versions", "lockstep_size", "run_task", "run_versions"]
 
 Emit = Callable[[int, str, int, float], None]
 
@@ -34,6 +35,13 @@ Emit = Callable[[int, str, int, float], None]
 def installed_versions() -> dict[str, str]:
     """The installed versions that shape a run's numbers (``harness.pins``), read once per process."""
     return installed_pins(config_hash="").versions
+
+
+def run_versions(spec: RunSpec, *, search_path: str | None = None) -> dict[str, str]:
+    """What a stored run of ``spec`` must have been made with to be reused: the installed
+    versions, and the fingerprint of the trainer's source (``registry.source_fingerprint``)."""
+    trainer = resolve_trainer(spec.trainer, search_path=search_path)
+    return {**installed_versions(), TRAINER_SOURCE: source_fingerprint(trainer.train)}
 
 
 def lockstep_size(spec: RunSpec, *, search_path: str | None = None) -> int:

@@ -53,6 +53,7 @@ def verdict_json(verdict: Verdict) -> dict:
             "same_config": prov.same_config,
             "changes": [dataclasses.asdict(c) for c in prov.changes],
             "drift": [dataclasses.asdict(d) for d in prov.drift],
+            "trainer_source_changed": prov.source_changed,
             "reading": prov.reading,
         },
         "exact": {**exact, "reading": v.exact.reading},
