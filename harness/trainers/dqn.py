@@ -32,6 +32,7 @@ from typing import Any
 
 import gymnasium as gym
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from harness.curves import Checkpoint
 from harness.errors import ConfigError, did_you_mean
@@ -303,6 +304,8 @@ class _Lockstep:
         self.episode_seeds = ev.episode_seeds()
         self.eval_envs = [[LeanEnv(runs[0].task) for _ in self.episode_seeds] for _ in range(k)]
         self.eval_net = MLP(self.agent.layout, k=k, rows=len(self.episode_seeds), dtype=settings.dtype)
+        self._actions = np.zeros(k, dtype=np.intp)
+        self._obs: list[np.ndarray] = []
 
     def epsilon(self, step: int) -> float:
         """Exploration probability before environment step ``step + 1`` (linear schedule)."""
@@ -329,42 +332,51 @@ class _Lockstep:
         return list(returns)
 
     def run(self) -> Iterator[tuple[Checkpoint, ...]]:
-        s, k, memory, agent = self.s, self.k, self.memory, self.agent
-        checkpoints = self.runs[0].checkpoint_steps()
-        pending = list(checkpoints)
-        if pending[0] == 0:
-            pending.pop(0)
-            yield tuple(Checkpoint(0, r) for r in self.evaluate())
-        obs = [env.reset(seed=seed) for env, seed in zip(self.envs, self.env_seeds)]
-        actions = np.zeros(k, dtype=np.intp)
+        """Train to each checkpoint step in turn and yield the evaluation there.
+
+        BLAS is limited to one thread while this code runs (not while the caller
+        holds a checkpoint): a multi-threaded BLAS on these small matrices is many
+        times slower on a busy machine (issue 6), whoever calls the trainer.
+        """
         budget = self.runs[0].budget
-        for step in range(1, budget + 1):
-            eps = self.epsilon(step - 1)
-            greedy = []
-            for i, rng in enumerate(self.explore_rngs):
-                if rng.random() < eps:
-                    actions[i] = rng.integers(self.n_actions)
-                else:
-                    greedy.append(i)
-            if greedy:
-                chosen = agent.greedy(obs)
-                for i in greedy:
-                    actions[i] = chosen[i]
-            for i, env in enumerate(self.envs):
-                a = int(actions[i])
-                nxt, reward, terminated, truncated = env.step(a + self.action_start)
-                memory.put(i, obs[i], a, reward, terminated, nxt)
-                obs[i] = env.reset() if (terminated or truncated) else nxt
-            memory.advance()
-            if step >= s.warmup_steps and step % s.update_every == 0 and memory.size >= s.minibatch:
-                if s.step_size_end is not None:
-                    agent.adam.step_size = self.step_size(step, budget)
-                agent.update(memory, self.replay_rngs)
-            if s.target == "hard" and step % s.target_sync_every == 0:
-                agent.sync_target()
-            if pending and step == pending[0]:
-                pending.pop(0)
-                yield tuple(Checkpoint(step, r) for r in self.evaluate())
+        done = 0
+        for target in self.runs[0].checkpoint_steps():
+            with threadpool_limits(limits=1, user_api="blas"):
+                if done == 0:
+                    self._obs = [env.reset(seed=seed) for env, seed in zip(self.envs, self.env_seeds)]
+                for step in range(done + 1, target + 1):
+                    self._step(step, budget)
+                returns = self.evaluate()
+            done = target
+            yield tuple(Checkpoint(target, r) for r in returns)
+
+    def _step(self, step: int, budget: int) -> None:
+        """Environment step ``step`` (1-based) of every seed, then the update and target sync it calls for."""
+        s, agent, memory, obs = self.s, self.agent, self.memory, self._obs
+        actions = self._actions
+        eps = self.epsilon(step - 1)
+        greedy = []
+        for i, rng in enumerate(self.explore_rngs):
+            if rng.random() < eps:
+                actions[i] = rng.integers(self.n_actions)
+            else:
+                greedy.append(i)
+        if greedy:
+            chosen = agent.greedy(obs)
+            for i in greedy:
+                actions[i] = chosen[i]
+        for i, env in enumerate(self.envs):
+            a = int(actions[i])
+            nxt, reward, terminated, truncated = env.step(a + self.action_start)
+            memory.put(i, obs[i], a, reward, terminated, nxt)
+            obs[i] = env.reset() if (terminated or truncated) else nxt
+        memory.advance()
+        if step >= s.warmup_steps and step % s.update_every == 0 and memory.size >= s.minibatch:
+            if s.step_size_end is not None:
+                agent.adam.step_size = self.step_size(step, budget)
+            agent.update(memory, self.replay_rngs)
+        if s.target == "hard" and step % s.target_sync_every == 0:
+            agent.sync_target()
 
 
 class _Agent:
