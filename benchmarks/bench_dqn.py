@@ -88,9 +88,9 @@ def raw_rate(steps: int) -> tuple[float, float]:
     return wrapped, steps / (time.process_time() - c0)
 
 
-def update_cost(hidden: tuple[int, ...], n: int) -> tuple[float, float, float]:
+def update_cost(hidden: tuple[int, ...], n: int, *, double_q: bool) -> tuple[float, float, float]:
     """(CPU µs per update, matmul FLOPs per update, CPU µs the update's matmuls take alone)."""
-    settings = dqn.DQNSettings(hidden=hidden, minibatch=MINIBATCH)
+    settings = dqn.DQNSettings(hidden=hidden, minibatch=MINIBATCH, double_q=double_q)
     rng = np.random.default_rng(1)
     agent = dqn._Agent(settings, 4, 2, [rng])
     memory = ReplayMemory(k=1, capacity=4096, obs_dim=4, dtype="float32")
@@ -179,13 +179,13 @@ def main() -> None:
         wrapped, lean = raw_rate(50_000)
         print(f"raw CartPole-v1 env-steps per CPU-second: gymnasium.make {wrapped:,.0f}, LeanEnv {lean:,.0f}")
         print()
-        print("solo (K=1), one update per env step, minibatch 64, Double DQN, hard target sync")
-        for hidden in ((128, 128), (64, 64)):
-            rates = [training_rate(1, hidden, steps) for _ in range(repeats)]
+        print("solo (K=1), one update per env step, minibatch 64, hard target sync")
+        for hidden, double_q in (((128, 128), True), ((128, 128), False), ((64, 64), True)):
+            rates = [training_rate(1, hidden, steps, double_q=double_q) for _ in range(repeats)]
             wall = statistics.median(r[0] for r in rates)
             rate = statistics.median(r[1] for r in rates)
-            us, flops, alone = update_cost(hidden, 1000)
-            name = "-".join(map(str, (4, *hidden, 2)))
+            us, flops, alone = update_cost(hidden, 1000, double_q=double_q)
+            name = "-".join(map(str, (4, *hidden, 2))) + (", Double DQN" if double_q else ", plain DQN")
             print(f"  {name}: {rate:,.0f} env-steps per CPU-second ({wall:,.0f} per wall second) = "
                   f"{rate / lean:.3f} x LeanEnv raw rate ({rate / wrapped:.3f} x gymnasium.make)")
             print(f"    update {us:.0f} µs; matmul floor: {flops / 1e6:.2f} MFLOP/update, those matmuls alone "
