@@ -489,16 +489,17 @@ def run_calibration(
     RunFailedError
         If any calibration run failed (never calibrated on fewer seeds than asked).
     """
-    from harness.executors.work import installed_versions
+    from harness.executors.work import run_versions
     from harness.runner import DEFAULT_RESULTS_DIR, run_manifest
 
     manifest, derived = plan.manifest, plan.derived
     folder = Path(results_dir) if results_dir is not None else Path(DEFAULT_RESULTS_DIR) / derived.name
     stored = Path(stored_dir) if stored_dir is not None else Path(DEFAULT_RESULTS_DIR) / manifest.name
     run_cache = (cache if isinstance(cache, RunCache) else RunCache(cache)) if use_cache else None
+    search_path = None if manifest.path is None else str(Path(manifest.path).resolve().parent)
+    versions = run_versions(derived.runs()[0], search_path=search_path)  # installed versions and trainer source
     folder.mkdir(parents=True, exist_ok=True)
-    reused = reuse_stored_runs(manifest, derived, folder=folder, stored=(stored,), cache=run_cache,
-                               versions=installed_versions())
+    reused = reuse_stored_runs(manifest, derived, folder=folder, stored=(stored,), cache=run_cache, versions=versions)
     outcome = run_manifest(derived, results_dir=folder, cache=run_cache, use_cache=use_cache, **run_options)
     tally = {s: sum(v == s for v in outcome.sources.values()) for s in ("trained", "cache", "resumed")}
     tally["resumed"] -= reused

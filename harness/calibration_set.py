@@ -13,8 +13,9 @@ Runs of the same spec (apart from the manifest's name and config hash) already
 stored in the calibration folder (an earlier calibration with another seed
 count), in the manifest's own results folder, or in the run cache under the
 manifest's own spec are reused when they were trained with the installed
-versions: a run is a function of its spec and versions (the determinism
-contract), so reusing it gives the same bytes as training it.
+versions and the same trainer source (``harness.executors.work.run_versions``):
+a run is a function of its spec, versions and code (the determinism contract),
+so reusing it gives the same bytes as training it.
 """
 
 from __future__ import annotations
@@ -119,7 +120,8 @@ def reuse_stored_runs(
     """Copy finished runs of the calibration's specs into its results folder, where the runner resumes them.
 
     A run is reused when a successful record of the same spec (apart from the manifest's name
-    and config hash) trained with ``versions`` is found, in order: in ``folder`` itself (an
+    and config hash) trained with ``versions`` (``harness.executors.work.run_versions``: the
+    installed versions and the trainer's source fingerprint) is found, in order: in ``folder`` itself (an
     earlier calibration with another seed count), in each ``stored`` folder (the manifest's own
     results), or in ``cache`` under the manifest's own spec.
 
