@@ -20,12 +20,12 @@ import datetime
 import json
 import os
 import platform
-import tempfile
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 from harness import __version__
+from harness._atomic import atomic_write_text
 from harness.curves import LearningCurve
 from harness.errors import BaselineError
 from harness.seeding import RunSeed
@@ -218,16 +218,7 @@ def write_baseline(baseline: Baseline, path: str | os.PathLike, *, overwrite: bo
     content["checksum"] = sha256_of(baseline.content())
     text = _render(content) + "\n"
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    atomic_write_text(path, text)
     return path
 
 

@@ -30,7 +30,8 @@ from filelock import FileLock
 from harness import __version__
 from harness.errors import ResultsError
 from harness.spec import RunSpec, sha256_of
-from harness.store import RunRecord, atomic_write_text, record_from_json, record_text, same_spec
+from harness._atomic import atomic_write_text
+from harness.store import RunRecord, record_from_json, record_text, same_spec
 
 __all__ = ["DEFAULT_CACHE_DIR", "RunCache", "cache_key"]
 

@@ -16,8 +16,6 @@ import dataclasses
 import importlib.metadata
 import os
 import platform
-import stat
-import tempfile
 from collections.abc import MutableMapping
 from pathlib import Path
 
@@ -27,6 +25,7 @@ import tomlkit
 import tomlkit.exceptions
 
 import harness
+from harness._atomic import atomic_write_text
 from harness.errors import ManifestError
 
 __all__ = ["DriftRow", "Pins", "blas_in_use", "drift", "installed_pins", "write_pins"]
@@ -164,19 +163,5 @@ def write_pins(path: str | os.PathLike, pins: Pins) -> None:
         del table[key]
     for key, value in values.items():
         table[key] = value
-    _atomic_write_text(target, tomlkit.dumps(document))
+    atomic_write_text(target, tomlkit.dumps(document))
 
-
-def _atomic_write_text(target: Path, text: str) -> None:
-    mode = stat.S_IMODE(target.stat().st_mode) if target.exists() else 0o644
-    handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="") as stream:
-            stream.write(text)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.chmod(temporary, mode)
-        os.replace(temporary, target)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise

@@ -27,12 +27,12 @@ import json
 import math
 import os
 import re
-import secrets
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 from harness.curves import Checkpoint, LearningCurve
+from harness._atomic import atomic_write_text
 from harness.errors import ResultsError
 from harness.spec import RunSpec, canonical_json
 
@@ -43,7 +43,6 @@ __all__ = [
     "ResultSet",
     "RunRecord",
     "TRAINER_SOURCE",
-    "atomic_write_text",
     "read_index",
     "read_record",
     "read_results",
@@ -143,24 +142,6 @@ def same_spec(a: RunSpec, b: RunSpec) -> bool:
 def record_file_name(spec: RunSpec) -> str:
     """``seed-<label>.json`` with the label made file-safe (``"42/3"`` -> ``seed-42-3.json``)."""
     return "seed-" + _UNSAFE.sub("-", spec.seed.label.replace("/", "-")) + ".json"
-
-
-def atomic_write_text(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file in the same folder and ``os.replace``.
-
-    Readers see either the old file or the complete new one, never a partial write.
-    """
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.{secrets.token_hex(6)}.tmp")
-    try:
-        with open(tmp, "x", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
 
 
 def _dumps(data: Any) -> str:

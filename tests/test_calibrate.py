@@ -13,7 +13,6 @@ import importlib
 import json
 import textwrap
 from io import StringIO
-from pathlib import Path
 
 import numpy as np
 import pytest

@@ -8,7 +8,6 @@ refactor is where the exact check matters most).
 
 from __future__ import annotations
 
-import textwrap
 from pathlib import Path
 
 from harness.cache import RunCache

@@ -66,7 +66,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.manifest import load_manifest
     from harness.report.calibration import CalibrationReport, render_calibration_markdown
     from harness.report.progress import RunProgress
-    from harness.store import atomic_write_text
+    from harness._atomic import atomic_write_text
 
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)

@@ -123,7 +123,7 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
     from harness.report.markdown import render_markdown
     from harness.report.plot import PlotUnavailableError, plot_curves
     from harness.report.terminal import VerdictReport
-    from harness.store import atomic_write_text
+    from harness._atomic import atomic_write_text
 
     console.print(VerdictReport(verdict))
     writers: list[tuple[str | None, Callable[[], str]]] = [

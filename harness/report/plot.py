@@ -9,12 +9,12 @@ samples. matplotlib is an optional extra; without it :func:`plot_curves` raises
 from __future__ import annotations
 
 import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 from scipy import stats as _st
 
+from harness._atomic import atomic_path
 from harness.curveset import CurveSet
 from harness.errors import HarnessError
 
@@ -85,12 +85,6 @@ def plot_curves(baseline: CurveSet | None, candidate: CurveSet, path: str | os.P
     ax.legend(loc="best", title="mean and 95% interval")
     ax.grid(alpha=0.3)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
+    with atomic_path(path) as tmp:
         fig.savefig(tmp, format=path.suffix[1:].lower(), metadata={"Date": None} if path.suffix.lower() == ".svg" else None)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
     return path
