@@ -33,24 +33,22 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from scipy import stats as _st
 
 from harness import stats
 from harness.cache import RunCache
 from harness.calibration_set import calibration_manifest, reuse_stored_runs
-from harness.compare import _metric_values, compare_sets
+from harness.compare import metric_values, compare_sets
 from harness.curveset import CurveSet, random_policy_return, task_threshold
 from harness.errors import ConfigError
 from harness.policy import GatePolicy
-from harness.stats import ConfidenceInterval
 from harness.stats._validate import check_positive_int
+from harness.stats.proportion import BinomialRate
 from harness.verify import decide
 
 __all__ = [
     "DEFAULT_SPLITS",
     "DEFAULT_SPLIT_SEED",
     "WHAT_CALIBRATION_SHOWS",
-    "BinomialRate",
     "Calibration",
     "CalibrationPlan",
     "MetricNoise",
@@ -73,46 +71,6 @@ WHAT_CALIBRATION_SHOWS = (
     "real regressions beyond the power analysis, which assumes Welch's t-test and the spread measured here; the "
     "interval of the rate is approximate because overlapping splits are not independent."
 )
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
-class BinomialRate:
-    """A rate observed in repeated trials, with its exact binomial interval.
-
-    Attributes
-    ----------
-    count, trials
-        Events and trials (A/A splits).
-    estimate
-        ``count / trials``.
-    interval
-        Clopper–Pearson interval at ``confidence_level``.
-    confidence_level
-        Level of ``interval``.
-    method
-        How the interval was computed, and why it is approximate here.
-    """
-
-    count: int
-    trials: int
-    estimate: float
-    interval: ConfidenceInterval
-    confidence_level: float
-    method: str
-
-    @classmethod
-    def of(cls, count: int, trials: int, *, confidence_level: float = 0.95) -> BinomialRate:
-        """The rate of ``count`` events in ``trials`` with a Clopper–Pearson interval.
-
-        References
-        ----------
-        .. [1] Clopper, C. J. & Pearson, E. S. (1934). The use of confidence or fiducial limits
-           illustrated in the case of the binomial. Biometrika 26:404–413.
-        """
-        ci = _st.binomtest(count, trials).proportion_ci(confidence_level=confidence_level, method="exact")
-        return cls(count, trials, count / trials, ConfidenceInterval(float(ci.low), float(ci.high)), confidence_level,
-                   "Clopper–Pearson exact binomial interval (Clopper & Pearson 1934); approximate here, because "
-                   "overlapping splits are not independent trials")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -306,6 +264,12 @@ def _recommend(noise: Sequence[MetricNoise]) -> Recommendation:
     return Recommendation(best.metric, reason)
 
 
+def _split_rate(count: int, splits: int) -> BinomialRate:
+    rate = BinomialRate.of(count, splits)
+    return dataclasses.replace(rate, method=rate.method + "; approximate here, because overlapping splits are "
+                               "not independent trials")
+
+
 def calibrate_curves(
     curves: CurveSet,
     *,
@@ -370,7 +334,7 @@ def calibrate_curves(
             counts[c.metric][c.verdict] += 1
     noise = []
     for metric in policy.metrics:
-        values = _metric_values(metric, curves, policy, threshold)
+        values = metric_values(metric, curves, policy, threshold)
         sd = float(np.std(values.values, ddof=1))
         margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=curves.budget)
         target = goals.get(metric, margin)
@@ -386,7 +350,7 @@ def calibrate_curves(
     return Calibration(
         manifest=curves.manifest.removesuffix("-calibration"), source=curves.label, seeds=len(curves.runs),
         group_size=g, splits=m, split_seed=int(split_seed), policy=policy,
-        false_alarms=BinomialRate.of(failed, m), called_worse=BinomialRate.of(worse, m),
+        false_alarms=_split_rate(failed, m), called_worse=_split_rate(worse, m),
         metrics=tuple(noise), recommendation=_recommend(noise), floor=floor, threshold=threshold,
         sources=dict(sources or {}),
     )

@@ -149,7 +149,7 @@ class StatisticalComparison:
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
-class _Values:
+class MetricValues:
     """Per-seed values of one metric, with censoring flags for steps-to-threshold."""
 
     values: np.ndarray
@@ -160,7 +160,7 @@ class _Values:
         return bool(self.censored.any())
 
 
-def _metric_values(metric: str, curve_set: CurveSet, policy: GatePolicy, threshold: float | None) -> _Values:
+def metric_values(metric: str, curve_set: CurveSet, policy: GatePolicy, threshold: float | None) -> MetricValues:
     spec = METRICS[metric]
     if spec.censored:
         if threshold is None:
@@ -169,10 +169,10 @@ def _metric_values(metric: str, curve_set: CurveSet, policy: GatePolicy, thresho
                 "reward threshold registered with gymnasium)"
             )
         results = [spec.compute(r.curve, threshold) for r in curve_set.runs]
-        return _Values(np.array([float(t.value) for t in results]), np.array([not t.reached for t in results]))
+        return MetricValues(np.array([float(t.value) for t in results]), np.array([not t.reached for t in results]))
     options = {"fraction": policy.final_share} if metric == "final" else {}
     values = np.array([float(spec.compute(r.curve, **options)) for r in curve_set.runs])
-    return _Values(values, np.zeros(values.size, dtype=bool))
+    return MetricValues(values, np.zeros(values.size, dtype=bool))
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -200,7 +200,7 @@ def _summary(values: np.ndarray) -> tuple[float, float, int]:
     return float(np.mean(values)), float(np.std(values, ddof=1)) if values.size > 1 else 0.0, int(values.size)
 
 
-def _raw_check(name: str, metric: str, against: str, cand: _Values, base: _Values | None,
+def _raw_check(name: str, metric: str, against: str, cand: MetricValues, base: MetricValues | None,
                reference: PublishedReference | None, margin: float, alpha: float) -> _Raw:
     higher_is_better = METRICS[metric].higher_is_better
     c = _summary(cand.values)
@@ -341,12 +341,12 @@ def compare_sets(
     raws = []
     for metric in policy.metrics if baseline is not None else ():
         margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=candidate.budget)
-        raws.append(_raw_check(metric, metric, "baseline", _metric_values(metric, candidate, policy, threshold),
-                               _metric_values(metric, baseline, policy, threshold), None, margin, policy.alpha))
+        raws.append(_raw_check(metric, metric, "baseline", metric_values(metric, candidate, policy, threshold),
+                               metric_values(metric, baseline, policy, threshold), None, margin, policy.alpha))
     for ref in references:
         margin = policy.margin_for(ref.metric, floor=floor, threshold=threshold, budget=candidate.budget)
         raws.append(_raw_check(f"{ref.metric} vs {ref.source}", ref.metric, ref.source,
-                               _metric_values(ref.metric, candidate, policy, threshold), None, ref, margin,
+                               metric_values(ref.metric, candidate, policy, threshold), None, ref, margin,
                                policy.alpha))
     worse = stats.holm([r.p_worse for r in raws], alpha=policy.alpha)
     better = stats.holm([r.p_better for r in raws], alpha=policy.alpha)

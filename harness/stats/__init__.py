@@ -34,6 +34,7 @@ from harness.stats.equivalence import (
 from harness.stats.max_statistic import MaxStatisticResult, max_statistic_test
 from harness.stats.multiple import AdjustedPValues, HolmResult, benjamini_hochberg, holm
 from harness.stats.power import minimum_detectable_difference, power_of, seeds_needed
+from harness.stats.proportion import BinomialRate
 from harness.stats.rank import (
     MannWhitneyResult,
     PermutationResult,
@@ -47,6 +48,7 @@ __all__ = [
     "ALTERNATIVES",
     "BOOTSTRAP_METHODS",
     "AdjustedPValues",
+    "BinomialRate",
     "Alternative",
     "BootstrapResult",
     "ConfidenceInterval",
