@@ -28,6 +28,15 @@ def sha256_of(value: Any) -> str:
     return "sha256:" + hashlib.sha256(canonical_json(value).encode()).hexdigest()
 
 
+def _tuples(value: Any) -> Any:
+    """``value`` with every list turned into a tuple, recursively (mappings become dicts)."""
+    if isinstance(value, Mapping):
+        return {k: _tuples(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return tuple(_tuples(v) for v in value)
+    return value
+
+
 @dataclasses.dataclass(frozen=True, slots=True)
 class TaskSpec:
     """A gymnasium task: its id, keyword arguments and episode step limit.
@@ -114,6 +123,11 @@ class RunSpec:
     seed: RunSeed
     index: int
     config_hash: str
+
+    def __post_init__(self) -> None:
+        # Arrays are tuples, as the settings resolver gives them, so that a spec read back
+        # from JSON (where they are lists) is equal to the one that was written.
+        object.__setattr__(self, "config", _tuples(self.config))
 
     def streams(self) -> RunStreams:
         """The run's independent random streams (fresh Generators on each call)."""
