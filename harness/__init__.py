@@ -1,18 +1,71 @@
-"""rl-harness: rerun RL training from a manifest and verify the results against baselines."""
+"""rl-harness: rerun RL training from a manifest and verify the results against baselines.
 
-from harness.curves import Checkpoint, LearningCurve
-from harness.errors import HarnessError, ManifestError
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+The library API behind the ``rlharness`` command::
+
+    manifest = harness.load_manifest("manifests/frozenlake-q.toml")
+    outcome = harness.run_manifest(manifest)                   # train every seed (or reuse)
+    baseline = harness.baseline_from_results(manifest, outcome.results)
+    verdict = harness.rerun_and_verify(manifest, baseline_path="baselines/frozenlake-q.json")
+    print(verdict.explain())
+
+A trainer of your own is a function ``train(run: RunSpec) -> Iterable[Checkpoint]``
+(see ``harness.trainers`` and ``examples/hill_climb.py``).
+"""
 
 __version__ = "0.1.0"
+
+import importlib
+
+# Loaded on first use (PEP 562), so that ``rlharness --help`` and worker processes do not
+# import scipy and the verification layer before they need them.
+_EXPORTS = {
+    "Checkpoint": "harness.curves",
+    "EvaluationPlan": "harness.spec",
+    "HarnessError": "harness.errors",
+    "LearningCurve": "harness.curves",
+    "Manifest": "harness.manifest",
+    "ManifestError": "harness.errors",
+    "RunSpec": "harness.spec",
+    "TaskSpec": "harness.spec",
+    "Verdict": "harness.verify",
+    "baseline_from_results": "harness.baseline",
+    "load_manifest": "harness.manifest",
+    "read_baseline": "harness.baseline",
+    "read_results": "harness.store",
+    "rerun_and_verify": "harness.verify",
+    "run_manifest": "harness.runner",
+    "verify_sets": "harness.verify",
+    "write_baseline": "harness.baseline",
+}
+
+
+def __getattr__(name: str):
+    if name in _EXPORTS:
+        return getattr(importlib.import_module(_EXPORTS[name]), name)
+    raise AttributeError(f"module 'harness' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(__all__)
+
 
 __all__ = [
     "Checkpoint",
     "EvaluationPlan",
     "HarnessError",
     "LearningCurve",
+    "Manifest",
     "ManifestError",
     "RunSpec",
     "TaskSpec",
+    "Verdict",
     "__version__",
+    "baseline_from_results",
+    "load_manifest",
+    "read_baseline",
+    "read_results",
+    "rerun_and_verify",
+    "run_manifest",
+    "verify_sets",
+    "write_baseline",
 ]
