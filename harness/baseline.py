@@ -74,6 +74,9 @@ class Baseline:
         rl-harness version that recorded it.
     runs
         Per-seed curves in the manifest's seed order.
+    recording
+        How the recording went: wall time, worker processes, where the runs came from
+        (informational; not compared).
     path
         The file it was read from or written to, if any (not part of the content).
     """
@@ -86,6 +89,7 @@ class Baseline:
     recorded: str
     harness_version: str
     runs: tuple[SeedCurve, ...]
+    recording: Mapping[str, str] = dataclasses.field(default_factory=dict)
     path: Path | None = dataclasses.field(default=None, compare=False)
 
     def content(self) -> dict:
@@ -97,6 +101,7 @@ class Baseline:
             "config": self.config,
             "versions": dict(self.versions),
             "platform": dict(self.platform),
+            "recording": dict(self.recording),
             "recorded": self.recorded,
             "harness_version": self.harness_version,
             "runs": [{"seed": r.seed.to_json(), "curve": r.curve.to_json()} for r in self.runs],
@@ -116,11 +121,14 @@ def _host_platform() -> dict[str, str]:
     return {
         "system": platform.platform(),
         "machine": platform.machine(),
+        "cpus": str(os.cpu_count()),
         "python": f"{platform.python_implementation()} {platform.python_version()}",
     }
 
 
-def baseline_from_results(manifest: Any, results: Any, *, recorded: str | None = None) -> Baseline:
+def baseline_from_results(
+    manifest: Any, results: Any, *, recorded: str | None = None, recording: Mapping[str, str] | None = None
+) -> Baseline:
     """Build a baseline from a manifest and its complete result set.
 
     Parameters
@@ -131,6 +139,8 @@ def baseline_from_results(manifest: Any, results: Any, *, recorded: str | None =
         A ``harness.store.ResultSet`` of that manifest.
     recorded
         ISO date to store; the current UTC time by default.
+    recording
+        How the recording went (wall time, workers, run sources), stored as given.
 
     Raises
     ------
@@ -174,6 +184,7 @@ def baseline_from_results(manifest: Any, results: Any, *, recorded: str | None =
         recorded=recorded or datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         harness_version=__version__,
         runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in records),
+        recording={str(k): str(v) for k, v in (recording or {}).items()},
     )
 
 
@@ -275,6 +286,7 @@ def read_baseline(path: str | os.PathLike, *, manifest_name: str | None = None) 
             config=data["config"],
             versions={str(k): str(v) for k, v in data["versions"].items()},
             platform={str(k): str(v) for k, v in data["platform"].items()},
+            recording={str(k): str(v) for k, v in data.get("recording", {}).items()},
             recorded=str(data["recorded"]),
             harness_version=str(data["harness_version"]),
             runs=tuple(

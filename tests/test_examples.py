@@ -30,6 +30,9 @@ def test_hill_climb_example_records_and_verifies_as_identical(tmp_path, monkeypa
     assert code == ExitCode.OK, out
     baseline = read_baseline(tmp_path / "baselines" / "hill-climb-cartpole.json")
     assert len(baseline.runs) == 8
+    # Provenance of the recording: the machine and how long it took (issue 7).
+    assert baseline.recording["runs"] == "8 trained" and float(baseline.recording["wall_seconds"]) > 0
+    assert int(baseline.platform["cpus"]) >= 1
 
     code, out = _cli("verify", "hill-climb.toml", "--fresh", "--workers", "2")
     assert code == ExitCode.OK, out

@@ -8,6 +8,9 @@ check happens before anything is run. Exit codes: 0 recorded, 2 bad input
 from __future__ import annotations
 
 import argparse
+import os
+import time
+from collections import Counter
 from pathlib import Path
 from typing import Any
 
@@ -23,16 +26,24 @@ __all__ = ["register"]
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
     from harness.manifest import load_manifest
+    from harness.store import read_index
 
     manifest = load_manifest(args.manifest)
     path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)
     check_overwrite(path, overwrite=args.overwrite)
+    start = time.perf_counter()
     try:
-        results, _ = obtain_results(args, manifest, console)
+        results, folder = obtain_results(args, manifest, console)
     except RunFailedError as exc:
         console.print(f"runs failed, no baseline written: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED
-    baseline = baseline_from_results(manifest, results)
+    sources = Counter(run.get("source", "stored") for run in read_index(folder)["runs"])
+    recording = {
+        "wall_seconds": f"{time.perf_counter() - start:.1f}",
+        "workers": str(args.workers or os.cpu_count()),
+        "runs": ", ".join(f"{n} {source}" for source, n in sorted(sources.items())),
+    }
+    baseline = baseline_from_results(manifest, results, recording=recording)
     written = write_baseline(baseline, path, overwrite=args.overwrite)
     console.print(
         f"recorded baseline {written}: {len(baseline.runs)} seeds, {manifest.config_hash}, checksum "
