@@ -93,16 +93,21 @@ class MetricCheck:
     candidate_values: tuple[float, ...]
 
     @property
+    def title(self) -> str:
+        """The check's name, with the reference's source when it is checked against one."""
+        return self.name if self.against == "baseline" else f"{self.name} ({self.against})"
+
+    @property
     def reading(self) -> str:
         """One sentence saying what the check found."""
         diff = f"{self.estimate:+.4g} ({self.confidence_level:.0%} interval [{self.interval.low:.4g}, {self.interval.high:.4g}])"
         if self.verdict == "equivalent":
-            return f"{self.name}: equivalent — difference {diff} lies inside the margin ±{self.margin:.4g}."
+            return f"{self.title}: equivalent — difference {diff} lies inside the margin ±{self.margin:.4g}."
         if self.verdict in ("worse", "better"):
             small = " but within the margin" if self.within_margin else ""
-            return f"{self.name}: significantly {self.verdict}{small} — difference {diff}, Holm-adjusted p = {self.pvalue:.3g}."
+            return f"{self.title}: significantly {self.verdict}{small} — difference {diff}, Holm-adjusted p = {self.pvalue:.3g}."
         return (
-            f"{self.name}: inconclusive — difference {diff} is neither significant nor inside the margin "
+            f"{self.title}: inconclusive — difference {diff} is neither significant nor inside the margin "
             f"±{self.margin:.4g}; with these seeds only differences of about {self.detectable:.4g} are detectable, "
             + (f"about {self.seeds_needed} seeds per side would detect one as large as the margin."
                if self.seeds_needed is not None else "no practical number of seeds would detect one as large as the margin.")
@@ -343,9 +348,9 @@ def compare_sets(
         margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=candidate.budget)
         raws.append(_raw_check(metric, metric, "baseline", metric_values(metric, candidate, policy, threshold),
                                metric_values(metric, baseline, policy, threshold), None, margin, policy.alpha))
-    for ref in references:
+    for number, ref in enumerate(references, start=1):
         margin = policy.margin_for(ref.metric, floor=floor, threshold=threshold, budget=candidate.budget)
-        raws.append(_raw_check(f"{ref.metric} vs {ref.source}", ref.metric, ref.source,
+        raws.append(_raw_check(f"{ref.metric} vs reference {number}", ref.metric, ref.source,
                                metric_values(ref.metric, candidate, policy, threshold), None, ref, margin,
                                policy.alpha))
     worse = stats.holm([r.p_worse for r in raws], alpha=policy.alpha)

@@ -244,10 +244,10 @@ def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
     reasons, failing = [], []
     for c in checks:
         if c.verdict == "worse" and not (policy.ignore_small and c.within_margin):
-            reasons.append(f"{c.name} is significantly worse ({c.estimate:+.4g}, Holm-adjusted p = {c.pvalue:.3g})")
+            reasons.append(f"{c.title} is significantly worse ({c.estimate:+.4g}, Holm-adjusted p = {c.pvalue:.3g})")
             failing.append(c.name)
         elif c.verdict == "inconclusive" and policy.strict:
-            reasons.append(f"{c.name} is inconclusive and the policy is strict (about {c.seeds_needed} seeds per side would settle it)")
+            reasons.append(f"{c.title} is inconclusive and the policy is strict (about {c.seeds_needed} seeds per side would settle it)")
             failing.append(c.name)
     if not reasons:
         ignored = [c.name for c in checks if c.verdict == "worse"]

@@ -195,7 +195,7 @@ def test_published_reference_checked_against_rerun(at):
     code, out = cli(at, "verify", "refs.toml", "--workers", "2", "--results", "results/refs")
     assert code == ExitCode.OK, out
     assert "checking against the manifest's published references only" in out
-    assert "final vs this test: summary of the recorded baseline" in out
+    assert "final vs reference 1: this test: summary of the recorded baseline" in out
     impossible = extra.replace(f"mean = {mean!r}", "mean = 0.99").replace(f"sd = {sd!r}", "se = 0.005")
     (at / "refs.toml").write_text(manifest_text("toy-refs", extra=impossible))
     code, out = cli(at, "verify", "refs.toml", "--results", "results/refs", "--no-run")

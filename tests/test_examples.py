@@ -59,3 +59,12 @@ def test_hill_climb_learns_well_above_a_random_policy(tmp_path):
     random_return = random_policy_return(manifest.task, manifest.evaluation)
     assert 10 < random_return < 40
     assert sum(f >= 10 * random_return for f in finals) >= 6, finals
+
+
+def test_published_reference_example_parses_with_its_reference():
+    from harness.manifest import load_manifest
+
+    manifest = load_manifest(EXAMPLES / "published-reference.toml")
+    (ref,) = manifest.references
+    assert (ref.metric, ref.mean, ref.sd, ref.seeds) == ("final", 7.80, 0.15, 8)
+    assert "invented" in ref.source  # demo data says it is demo data

@@ -113,8 +113,8 @@ def test_failed_gate_fails_the_test_with_the_explanation(project):
     result.assert_outcomes(failed=1)
     result.stdout.fnmatch_lines([
         "*gate FAILED for lake-ref: 1 worse.",
-        "*final vs a deliberately unreachable number (this test): significantly worse*",
-        "*gate: final vs a deliberately unreachable number (this test) is significantly worse*",
+        "*final vs reference 1 (a deliberately unreachable number (this test)): significantly worse*",
+        "*gate: final vs reference 1 (a deliberately unreachable number (this test)) is significantly worse*",
     ])
 
 

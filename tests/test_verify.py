@@ -76,7 +76,8 @@ def test_published_reference_uses_welch_from_summary_statistics():
                              source="NIST/SEMATECH e-Handbook 1.3.5.3 (Japanese cars)")
     verdict = verify_sets(None, curve_set(flat(US)), POLICY, references=(ref,))
     (check,) = verdict.checks
-    assert check.name == "final vs NIST/SEMATECH e-Handbook 1.3.5.3 (Japanese cars)"
+    assert check.name == "final vs reference 1"
+    assert check.title == "final vs reference 1 (NIST/SEMATECH e-Handbook 1.3.5.3 (Japanese cars))"
     assert check.estimate == pytest.approx(NIST_MEAN_US - NIST_MEAN_JP, rel=1e-5)
     assert check.pvalue == pytest.approx(WELCH_P_TWO_SIDED / 2, rel=1e-3)
     assert check.verdict == "worse" and check.baseline_values is None

@@ -55,6 +55,8 @@ def check_notes(verdict: Verdict) -> list[str]:
     level = verdict.checks[0].confidence_level
     notes = [f"difference = candidate - baseline with its {level:.0%} interval; p: Holm-adjusted one-sided p-value "
              "(of 'worse', or of 'better' for a better verdict)."]
+    notes += [f"{c.name}: {c.against} (mean {num(c.baseline_mean)}, sd {num(c.baseline_sd)}, {c.baseline_n} seeds)."
+              for c in verdict.checks if c.against != "baseline"]
     for c in verdict.checks:
         if c.verdict == "inconclusive":
             seeds = (f"about {c.seeds_needed} seeds per side would detect a difference as large as the margin"
