@@ -17,6 +17,7 @@ from collections.abc import Sequence
 from rich.console import Console
 from rich.markup import escape
 
+import harness
 from harness.errors import HarnessError
 
 __all__ = ["COMMANDS", "ExitCode", "build_parser", "main"]
@@ -43,7 +44,14 @@ def build_parser() -> argparse.ArgumentParser:
             "Rerun reinforcement-learning training from a manifest and decide, with statistics, "
             "whether the new learning curves match a stored baseline."
         ),
+        epilog=(
+            "typical use: `rlharness record MANIFEST` once, commit the baseline; then "
+            "`rlharness verify MANIFEST` on every change. "
+            "Exit codes: 0 passed, 1 gate failed, 2 bad input (nothing written), 3 runs failed, "
+            "130 interrupted (finished runs kept). `rlharness COMMAND --help` for each command."
+        ),
     )
+    parser.add_argument("--version", action="version", version=f"rl-harness {harness.__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in COMMANDS:
         importlib.import_module(f"harness.cli.{name}").register(sub)
