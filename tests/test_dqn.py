@@ -221,5 +221,5 @@ def test_shipped_cartpole_manifest_is_valid():
     path = Path(__file__).resolve().parents[1] / "manifests" / "cartpole-dqn.toml"
     manifest = load_manifest(path)
     runs = manifest.runs()
-    assert len(runs) == 10 and runs[0].task.id == "CartPole-v1" and runs[0].trainer == "dqn"
+    assert len(runs) == 20 and runs[0].task.id == "CartPole-v1" and runs[0].trainer == "dqn"
     DQNSettings(**runs[0].config)
