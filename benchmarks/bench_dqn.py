@@ -32,6 +32,7 @@ import tracemalloc
 import numpy as np
 from threadpoolctl import threadpool_info, threadpool_limits
 
+from harness.config import to_json
 from harness.seeding import plan_seeds
 from harness.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.trainers import dqn
@@ -45,8 +46,8 @@ WARMUP = 64  # updates start once one minibatch is stored: one update per env st
 
 
 def runs(k: int, hidden: tuple[int, ...], budget: int, **extra) -> list[RunSpec]:
-    config = dqn.DQNSettings(hidden=hidden, minibatch=MINIBATCH, warmup_steps=WARMUP,
-                             explore_decay_steps=budget // 10, **extra).to_config()
+    config = to_json(dqn.DQNSettings(hidden=hidden, minibatch=MINIBATCH, warmup_steps=WARMUP,
+                                     explore_decay_steps=budget // 10, **extra))
     return [
         RunSpec("bench", TASK, "dqn", config, budget, EvaluationPlan(budget, 1, 7), seed, i, "bench")
         for i, seed in enumerate(plan_seeds(count=k, root=20261201))

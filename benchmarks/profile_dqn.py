@@ -15,6 +15,7 @@ import pstats
 
 from threadpoolctl import threadpool_limits
 
+from harness.config import to_json
 from harness.seeding import plan_seeds
 from harness.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.trainers import dqn
@@ -26,7 +27,7 @@ def main() -> None:
     parser.add_argument("--steps", type=int, default=4_000)
     parser.add_argument("--top", type=int, default=15)
     args = parser.parse_args()
-    config = dqn.DQNSettings(hidden=tuple(args.hidden), warmup_steps=64).to_config()
+    config = to_json(dqn.DQNSettings(hidden=tuple(args.hidden), warmup_steps=64))
     (seed,) = plan_seeds(count=1, root=20261201)
     run = RunSpec("profile", TaskSpec("CartPole-v1"), "dqn", config, args.steps,
                   EvaluationPlan(args.steps, 1, 7), seed, 0, "profile")

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import gymnasium as gym
 import numpy as np
 import pytest
 
+from harness.config import resolve, to_json
 from harness.curves import LearningCurve
 from harness.errors import ConfigError
 from harness.seeding import plan_seeds
@@ -23,7 +25,7 @@ SMALL = dict(hidden=(16, 16), minibatch=16, memory_size=2000, warmup_steps=50, e
 
 
 def make_runs(n, budget, config, *, every, episodes=3, task=CARTPOLE, epsilon=0.0):
-    resolved = DQNSettings(**config).to_config()
+    resolved = to_json(DQNSettings(**config))
     plan = EvaluationPlan(every, episodes, seed=7, epsilon=epsilon)
     return [RunSpec("test", task, "dqn", resolved, budget, plan, seed, i, "sha256:test")
             for i, seed in enumerate(plan_seeds(count=n, root=20261201))]
@@ -38,8 +40,8 @@ def curve_bytes(checkpoints) -> str:
 def test_settings_normalise_lists_and_round_trip():
     s = DQNSettings(hidden=[32, 16], discount=1)
     assert s.hidden == (32, 16) and s.discount == 1.0 and isinstance(s.discount, float)
-    config = s.to_config()
-    assert config["hidden"] == [32, 16]
+    config = to_json(s)
+    assert json.loads(canonical_json(config))["hidden"] == [32, 16]  # JSON writes the tuple as a list
     assert DQNSettings(**config) == s
 
 
@@ -77,9 +79,9 @@ def test_step_size_schedule_runs_from_step_size_to_step_size_end():
     assert loop.step_size((first + 1000) // 2, 1000) == pytest.approx(5.5e-4, rel=1e-12)
 
 
-def test_from_config_rejects_unknown_keys():
-    with pytest.raises(ConfigError, match="unknown DQN setting 'minibach'. Did you mean 'minibatch'"):
-        DQNSettings.from_config({"minibach": 32})
+def test_settings_resolver_rejects_unknown_keys():
+    with pytest.raises(ConfigError, match="Did you mean 'minibatch'"):
+        resolve(DQNSettings, {"minibach": 32}, key="trainer.settings")
 
 
 # ----------------------------------------------------------------------------- targets

@@ -27,13 +27,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Iterator, Mapping, Sequence
-from typing import Any
+from collections.abc import Iterator, Sequence
 
 import gymnasium as gym
 import numpy as np
 from threadpoolctl import threadpool_limits
 
+from harness import config
 from harness.curves import Checkpoint
 from harness.errors import ConfigError, did_you_mean
 from harness.spec import RunSpec
@@ -148,20 +148,6 @@ class DQNSettings:
             if value not in choices:
                 raise ConfigError(f"unknown value {value!r}.{did_you_mean(str(value), choices)}", key=name)
 
-    @classmethod
-    def from_config(cls, config: Mapping[str, Any]) -> DQNSettings:
-        """Build from a settings mapping, rejecting unknown keys with a "did you mean"."""
-        known = [f.name for f in dataclasses.fields(cls)]
-        for key in config:
-            if key not in known:
-                raise ConfigError(f"unknown DQN setting {key!r}.{did_you_mean(key, known)}", key=key)
-        return cls(**config)
-
-    def to_config(self) -> dict[str, Any]:
-        """The resolved settings as JSON-compatible values (tuples become lists)."""
-        out = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
-        out["hidden"] = list(self.hidden)
-        return out
 
 
 def _is_int(value: object) -> bool:
@@ -268,9 +254,10 @@ def train_lockstep(runs: Sequence[RunSpec]) -> Iterator[tuple[Checkpoint, ...]]:
     if not runs:
         raise ValueError("`runs` must hold at least one RunSpec, got none")
     first = runs[0]
-    settings = DQNSettings.from_config(first.config)
+    settings = config.resolve(DQNSettings, first.config, key="trainer.settings")
     for r in runs[1:]:
-        same = (r.task, r.trainer, DQNSettings.from_config(r.config), r.budget, r.evaluation)
+        same = (r.task, r.trainer, config.resolve(DQNSettings, r.config, key="trainer.settings"), r.budget,
+                r.evaluation)
         if same != (first.task, first.trainer, settings, first.budget, first.evaluation):
             raise ValueError(
                 f"`runs` must differ only in their seeds; run {r.index} ({r.seed.label}) differs "
