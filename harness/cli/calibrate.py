@@ -21,7 +21,7 @@ from harness.calibration_set import SEED_FACTOR
 from harness.cli import ExitCode
 from harness.cli.verify import add_policy_arguments, policy_from_args
 from harness.errors import HarnessError, RunFailedError
-from harness.executors import EXECUTORS
+from harness.cli._options import add_execution_arguments, execution_options
 
 __all__ = ["parse_targets", "register"]
 
@@ -61,7 +61,6 @@ def parse_targets(text: str | None, metrics: tuple[str, ...]) -> dict[str, float
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.cache import RunCache
     from harness.calibrate import plan_calibration, run_calibration
     from harness.manifest import load_manifest
     from harness.report.calibration import CalibrationReport, render_calibration_markdown
@@ -71,8 +70,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)
     try:
-        if args.scheduler is not None and args.executor != "dask":
-            raise ValueError("--scheduler needs --executor dask")
+        options = execution_options(args)
         targets = parse_targets(args.target_difference, policy.metrics)
         plan = plan_calibration(manifest, seeds=args.seeds, splits=args.splits, split_seed=args.split_seed,
                                 targets=targets, policy=policy)
@@ -88,9 +86,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     try:
         with RunProgress(console) as progress:
             calibration = run_calibration(
-                plan, results_dir=args.results, stored_dir=args.stored, cache=RunCache(args.cache_dir),
-                use_cache=not args.no_cache, workers=args.workers, executor=args.executor,
-                scheduler=args.scheduler, on_event=progress,
+                plan, results_dir=args.results, stored_dir=args.stored, on_event=progress, **options,
             )
     except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
         console.print(f"error: {exc}", highlight=False, soft_wrap=True)
@@ -136,11 +132,6 @@ def register(subparsers: Any) -> None:
                          "(default: results/<manifest name>-calibration/)")
     running.add_argument("--stored", metavar="DIR", help="the manifest's own results, reused where they match "
                          "(default: results/<manifest name>/)")
-    running.add_argument("--workers", type=int, metavar="N", help="worker processes (default: one per core)")
-    running.add_argument("--executor", choices=EXECUTORS, default="local", help="where runs train")
-    running.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address (with --executor dask)")
-    running.add_argument("--cache-dir", metavar="DIR",
-                         help="run cache folder (default: $RLHARNESS_CACHE_DIR or .rlharness-cache)")
-    running.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
+    add_execution_arguments(running)
     add_policy_arguments(parser)
     parser.set_defaults(handler=_handle)

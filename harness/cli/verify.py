@@ -16,6 +16,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
+from harness.cli._options import add_execution_arguments, execution_options
 from harness.errors import HarnessError, RunFailedError
 from harness.policy import KNOWN_METRICS, GatePolicy
 from harness.verify import Verdict
@@ -32,10 +33,7 @@ def add_run_arguments(parser: argparse.ArgumentParser) -> None:
                        help="use the results already stored in the results folder; train nothing")
     group.add_argument("--fresh", action="store_true",
                        help="train every seed again: no run cache, no resumed files (a new results folder)")
-    group.add_argument("--workers", type=int, metavar="N", help="worker processes (default: one per core)")
-    group.add_argument("--executor", choices=("local", "dask"), default="local", help="where runs train")
-    group.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address (with --executor dask)")
-    group.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
+    add_execution_arguments(group)
     group.add_argument("--baselines", metavar="DIR", default="baselines",
                        help="folder of baselines (default: baselines/); the file is <manifest name>.json")
 
@@ -61,15 +59,15 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
     from harness.runner import run_manifest
 
     folder = Path(args.results) if args.results else default
-    use_cache = not (args.no_cache or args.fresh)
+    options = execution_options(args)
     if args.fresh:
+        options["use_cache"] = False
         folder.parent.mkdir(parents=True, exist_ok=True)
         folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
     console.print(f"running {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...", highlight=False)
     try:
         with RunProgress(console) as progress:  # draws nothing when the console is not a terminal
-            outcome = run_manifest(manifest, results_dir=folder, workers=args.workers, executor=args.executor,
-                                   scheduler=args.scheduler, use_cache=use_cache, on_event=progress)
+            outcome = run_manifest(manifest, results_dir=folder, on_event=progress, **options)
     except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
         raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
     failed = outcome.results.failed()

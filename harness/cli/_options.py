@@ -1,0 +1,67 @@
+"""Command-line options shared by the commands that train: where and how runs execute."""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+from harness.errors import HarnessError
+from harness.executors import EXECUTORS
+
+__all__ = ["add_execution_arguments", "execution_options", "positive_float", "positive_int"]
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number of at least 1."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {text!r}")
+    return value
+
+
+def positive_float(text: str) -> float:
+    """argparse type: a positive number of seconds."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number of seconds, got {text!r}") from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be a positive number of seconds, got {text!r}")
+    return value
+
+
+def add_execution_arguments(group: Any) -> None:
+    """``--workers``, ``--executor``, ``--scheduler``, ``--cache-dir`` and ``--no-cache``."""
+    group.add_argument("--workers", type=positive_int, metavar="N",
+                       help="worker processes, or local dask workers (default: one per core)")
+    group.add_argument("--executor", choices=EXECUTORS, default="local",
+                       help="local worker processes (default) or a dask distributed cluster")
+    group.add_argument("--scheduler", metavar="ADDRESS",
+                       help="dask scheduler address, e.g. tcp://scheduler-host:8786 (default: start a local cluster)")
+    group.add_argument("--cache-dir", metavar="DIR",
+                       help="run cache folder (default: $RLHARNESS_CACHE_DIR or .rlharness-cache)")
+    group.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
+
+
+def execution_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The runner's keyword arguments for the options of :func:`add_execution_arguments`.
+
+    Raises
+    ------
+    HarnessError
+        ``--scheduler`` without ``--executor dask``.
+    """
+    from harness.cache import RunCache
+
+    if args.scheduler is not None and args.executor != "dask":
+        raise HarnessError("--scheduler needs --executor dask")
+    return {
+        "workers": args.workers,
+        "executor": args.executor,
+        "scheduler": args.scheduler,
+        "cache": RunCache(args.cache_dir),
+        "use_cache": not args.no_cache,
+    }
