@@ -59,8 +59,8 @@ __all__ = [
 #: (``harness.trainers.registry.source_fingerprint``): a run of other code is never reused.
 TRAINER_SOURCE = "trainer_source"
 
-RECORD_SCHEMA = "rl-harness/run/1"
-RESULTS_SCHEMA = "rl-harness/results/1"
+RECORD_SCHEMA = "rlharness.run/1"
+RESULTS_SCHEMA = "rlharness.results/1"
 INDEX_FILE = "index.json"
 STATUSES = ("ok", "failed")
 _UNSAFE = re.compile(r"[^A-Za-z0-9_.-]")
