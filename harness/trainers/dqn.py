@@ -40,6 +40,7 @@ from harness.spec import RunSpec
 from harness.trainers.envs import LeanEnv, evaluate_stacked
 from harness.trainers.nn import MLP, Adam, Layout, init_params
 from harness.trainers.replay import ReplayMemory
+from harness.trainers.schedule import linear_decay
 
 __all__ = ["DQNSettings", "bellman_targets", "lockstep_size", "train", "train_lockstep"]
 
@@ -298,8 +299,7 @@ class _Lockstep:
     def epsilon(self, step: int) -> float:
         """Exploration probability before environment step ``step + 1`` (linear schedule)."""
         s = self.s
-        frac = min(1.0, step / s.explore_decay_steps) if s.explore_decay_steps else 1.0
-        return s.explore_start + frac * (s.explore_end - s.explore_start)
+        return linear_decay(s.explore_start, s.explore_end, s.explore_decay_steps, step)
 
     def step_size(self, step: int, budget: int) -> float:
         """Adam's alpha at environment step ``step``: linear from the first update to the budget's end."""

@@ -32,6 +32,7 @@ from harness.curves import Checkpoint
 from harness.errors import ConfigError
 from harness.spec import RunSpec
 from harness.trainers.envs import evaluate_policy, make_env
+from harness.trainers.schedule import linear_decay
 
 __all__ = ["TabularQSettings", "evaluation_rng", "greedy_action", "learn", "train"]
 
@@ -89,8 +90,7 @@ class TabularQSettings:
         >>> [round(s.epsilon(t), 2) for t in (0, 5, 10, 20)]
         [1.0, 0.55, 0.1, 0.1]
         """
-        left = max(0.0, 1.0 - step / self.explore_decay_steps)
-        return self.explore_end + (self.explore_start - self.explore_end) * left
+        return linear_decay(self.explore_start, self.explore_end, self.explore_decay_steps, step)
 
 
 def _discrete_size(space: gym.Space, what: str, env: gym.Env) -> tuple[int, int]:
