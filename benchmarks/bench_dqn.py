@@ -32,9 +32,9 @@ import tracemalloc
 import numpy as np
 from threadpoolctl import threadpool_info, threadpool_limits
 
-from harness.config import to_json
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.core.config import to_json
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.trainers import dqn
 from harness.trainers.envs import LeanEnv, make_env
 from harness.trainers.nn import Adam, Layout

@@ -27,13 +27,13 @@ import tempfile
 import time
 from pathlib import Path
 
-from harness.cache import RunCache
-from harness.curves import Checkpoint
-from harness.executors import Task
-from harness.executors.work import run_task
-from harness.manifest import parse_manifest
-from harness.runner import run_manifest, run_specs
-from harness.spec import RunSpec
+from harness.store.cache import RunCache
+from harness.core.curves import Checkpoint
+from harness.execute import Task
+from harness.execute.work import run_task
+from harness.manifest.loader import parse_manifest
+from harness.execute.runner import run_manifest, run_specs
+from harness.core.spec import RunSpec
 
 MANIFEST = """
 name = "bench-frozenlake"

@@ -21,7 +21,7 @@ from threadpoolctl import threadpool_limits
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from harness.errors import TooFewSeedsWarning  # noqa: E402
+from harness.core.errors import TooFewSeedsWarning  # noqa: E402
 from harness.stats import bootstrap_mean_difference, max_statistic_test, power_of  # noqa: E402
 from harness.stats.calibration import CALIBRATION_METHODS, DISTRIBUTIONS, calibrate  # noqa: E402
 

@@ -15,9 +15,9 @@ import pstats
 
 from threadpoolctl import threadpool_limits
 
-from harness.config import to_json
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.core.config import to_json
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.trainers import dqn
 
 

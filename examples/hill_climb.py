@@ -24,7 +24,7 @@ from collections.abc import Iterator
 import numpy as np
 
 from harness import Checkpoint, RunSpec
-from harness.errors import ConfigError
+from harness.core.errors import ConfigError
 from harness.trainers.envs import evaluate_policy, make_env
 
 

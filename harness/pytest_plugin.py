@@ -74,10 +74,10 @@ def _under_root(config: pytest.Config, path: str | Path) -> Path:
 def _verify(config: pytest.Config, nodeid: str, manifest: str | Path, *, baseline: str | Path | None = None,
             **policy: Any) -> Any:
     """Rerun and verify one manifest; fail the running test unless the gate passes."""
-    from harness.baseline import default_baseline_path
-    from harness.errors import HarnessError
-    from harness.manifest import load_manifest
-    from harness.verify import rerun_and_verify
+    from harness.store.baseline import default_baseline_path
+    from harness.core.errors import HarnessError
+    from harness.manifest.loader import load_manifest
+    from harness.gate.verify import rerun_and_verify
 
     manifest_path = _under_root(config, manifest)
     problem = None
@@ -108,7 +108,7 @@ def _verify(config: pytest.Config, nodeid: str, manifest: str | Path, *, baselin
 def rlharness_verify(request: pytest.FixtureRequest) -> Callable[..., Any]:
     """A function ``verify(manifest, *, baseline=None, **policy)`` that reruns and verifies a manifest.
 
-    It returns the :class:`harness.verify.Verdict` when the gate passes and fails the test
+    It returns the :class:`harness.gate.verify.Verdict` when the gate passes and fails the test
     with the verdict's explanation otherwise.
     """
 
@@ -153,7 +153,7 @@ def pytest_terminal_summary(terminalreporter: Any, exitstatus: int, config: pyte
     verdicts = config.stash.get(_VERDICTS, [])
     if not verdicts:
         return
-    from harness.verify import WHAT_A_PASS_MEANS
+    from harness.gate.verify import WHAT_A_PASS_MEANS
 
     terminalreporter.section("rl-harness verdicts")
     for nodeid, verdict in verdicts:

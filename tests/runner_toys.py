@@ -15,9 +15,9 @@ import signal
 import time
 from pathlib import Path
 
-from harness.curves import Checkpoint
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.core.curves import Checkpoint
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
 
 
 def toy(run: RunSpec):

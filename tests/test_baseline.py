@@ -8,18 +8,18 @@ from pathlib import Path
 
 import pytest
 
-from harness.baseline import (
+from harness.store.baseline import (
     BASELINE_SCHEMA,
     baseline_from_results,
     default_baseline_path,
     read_baseline,
     write_baseline,
 )
-from harness.curves import Checkpoint, LearningCurve
-from harness.errors import BaselineError
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
-from harness.store import ResultSet, RunRecord
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.core.errors import BaselineError
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.store.results import ResultSet, RunRecord
 
 VERSIONS = {"python": "3.11.9", "numpy": "2.1.0"}
 

@@ -8,10 +8,10 @@ import pytest
 from filelock import Timeout
 from runner_toys import toy_specs
 
-import harness.cache
-from harness.cache import RunCache, cache_key
-from harness.curves import Checkpoint, LearningCurve
-from harness.store import RunRecord, record_text
+import harness.store.cache
+from harness.store.cache import RunCache, cache_key
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.store.results import RunRecord, record_text
 
 VERSIONS = {"numpy": "2.0", "python": "3.11"}
 
@@ -45,7 +45,7 @@ def test_key_covers_spec_versions_and_harness_version(monkeypatch):
     assert key == cache_key(a, dict(reversed(list(VERSIONS.items()))))  # canonical JSON: key order does not matter
     assert key != cache_key(b, VERSIONS)
     assert key != cache_key(a, {**VERSIONS, "python": "3.12"})
-    monkeypatch.setattr(harness.cache, "__version__", "99.0")
+    monkeypatch.setattr(harness.store.cache, "__version__", "99.0")
     assert key != cache_key(a, VERSIONS)
 
 

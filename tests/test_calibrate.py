@@ -21,17 +21,17 @@ from hypothesis import strategies as st
 from rich.console import Console
 
 from harness import stats
-from harness.baseline import SeedCurve
-from harness.calibrate import calibrate_curves, plan_calibration, split_groups
-from harness.calibration_set import calibration_manifest, calibration_seeds
+from harness.store.baseline import SeedCurve
+from harness.gate.calibrate import calibrate_curves, plan_calibration, split_groups
+from harness.gate.calibration_set import calibration_manifest, calibration_seeds
 from harness.cli import ExitCode, main
-from harness.curves import Checkpoint, LearningCurve
-from harness.curveset import CurveSet
-from harness.manifest import parse_manifest
-from harness.metrics import area_under_curve, final_return
-from harness.policy import GatePolicy
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.gate.curveset import CurveSet
+from harness.manifest.loader import parse_manifest
+from harness.gate.metrics import area_under_curve, final_return
+from harness.manifest.policy import GatePolicy
 from harness.report.calibration import CalibrationReport, render_calibration_markdown
-from harness.seeding import plan_seeds
+from harness.core.seeding import plan_seeds
 
 STEPS = (0, 25, 50, 75, 100)
 
@@ -284,7 +284,7 @@ def test_cli_failed_runs_exit_3(project):
     assert "seed 7/4" in out and "toy trainer broke on purpose" in out
 
 
-@pytest.mark.parametrize("module", ["harness.calibrate", "harness.calibration_set"])
+@pytest.mark.parametrize("module", ["harness.gate.calibrate", "harness.gate.calibration_set"])
 def test_docstring_examples(module):
     result = doctest.testmod(importlib.import_module(module))
     assert result.attempted > 0 and result.failed == 0

@@ -9,7 +9,7 @@ from rich.console import Console
 from runner_toys import folder_bytes
 
 from harness.cli import ExitCode, main
-from harness.executors import RunEvent
+from harness.execute import RunEvent
 from harness.report.progress import RunProgress
 
 TINY = """

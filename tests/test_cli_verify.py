@@ -19,14 +19,14 @@ from pathlib import Path
 import pytest
 from rich.console import Console
 
-from harness.baseline import read_baseline, write_baseline
+from harness.store.baseline import read_baseline, write_baseline
 from harness.cli import ExitCode, main
 
 BROKEN_RULE = '''
 """Q-learning with a deliberately broken learning rule: the reward never enters the update."""
 import numpy as np
 
-from harness.curves import Checkpoint
+from harness.core.curves import Checkpoint
 from harness.trainers.envs import evaluate_policy, make_env
 from harness.trainers.tabular import TabularQSettings, evaluation_rng, greedy_action
 
@@ -204,7 +204,7 @@ def test_published_reference_checked_against_rerun(at):
 
 
 def _final_values(path: Path) -> list[float]:
-    from harness.metrics import final_return
+    from harness.gate.metrics import final_return
 
     return [final_return(r.curve, fraction=0.1) for r in read_baseline(path).runs]
 

@@ -10,8 +10,8 @@ from typing import Any, Literal
 
 import pytest
 
-from harness.config import check_json_value, resolve, to_json
-from harness.errors import ConfigError, ManifestError
+from harness.core.config import check_json_value, resolve, to_json
+from harness.core.errors import ConfigError, ManifestError
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

@@ -10,8 +10,8 @@ import sys
 import pytest
 from runner_toys import folder_bytes, toy_specs
 
-from harness.executors import make_executor
-from harness.runner import run_specs
+from harness.execute import make_executor
+from harness.execute.runner import run_specs
 
 distributed = pytest.importorskip("distributed")
 

@@ -9,11 +9,11 @@ import gymnasium as gym
 import numpy as np
 import pytest
 
-from harness.config import resolve, to_json
-from harness.curves import LearningCurve
-from harness.errors import ConfigError
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec, canonical_json
+from harness.core.config import resolve, to_json
+from harness.core.curves import LearningCurve
+from harness.core.errors import ConfigError
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, canonical_json
 from harness.trainers import dqn
 from harness.trainers.dqn import DQNSettings, bellman_targets, lockstep_size, train, train_lockstep
 from harness.trainers.envs import LeanEnv, evaluate_policy, make_env
@@ -218,7 +218,7 @@ def test_learns_cartpole_well_above_a_random_policy():
 
 
 def test_shipped_cartpole_manifest_is_valid():
-    from harness.manifest import load_manifest
+    from harness.manifest.loader import load_manifest
 
     path = Path(__file__).resolve().parents[1] / "manifests" / "cartpole-dqn.toml"
     manifest = load_manifest(path)

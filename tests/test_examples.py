@@ -8,7 +8,7 @@ from pathlib import Path
 
 from rich.console import Console
 
-from harness.baseline import read_baseline
+from harness.store.baseline import read_baseline
 from harness.cli import ExitCode, main
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
@@ -47,11 +47,11 @@ def test_hill_climb_example_records_and_verifies_as_identical(tmp_path, monkeypa
 
 def test_hill_climb_learns_well_above_a_random_policy(tmp_path):
     # A uniformly random policy averages about 22 on CartPole-v1 (recalled from memory;
-    # measured here by harness.curveset.random_policy_return); hill climbing a linear policy
+    # measured here by harness.gate.curveset.random_policy_return); hill climbing a linear policy
     # balances the pole for hundreds of steps within 20,000 steps (common practice).
-    from harness.curveset import random_policy_return
-    from harness.manifest import load_manifest
-    from harness.runner import run_manifest
+    from harness.gate.curveset import random_policy_return
+    from harness.manifest.loader import load_manifest
+    from harness.execute.runner import run_manifest
 
     manifest = load_manifest(EXAMPLES / "hill-climb.toml")
     outcome = run_manifest(manifest, results_dir=tmp_path / "r", workers=2, use_cache=False)
@@ -62,7 +62,7 @@ def test_hill_climb_learns_well_above_a_random_policy(tmp_path):
 
 
 def test_published_reference_example_parses_with_its_reference():
-    from harness.manifest import load_manifest
+    from harness.manifest.loader import load_manifest
 
     manifest = load_manifest(EXAMPLES / "published-reference.toml")
     (ref,) = manifest.references

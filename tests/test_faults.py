@@ -17,11 +17,11 @@ from pathlib import Path
 
 from runner_toys import folder_bytes, toy_specs
 
-from harness.cache import RunCache
-from harness.executors import Task, WorkerResult
-from harness.executors.local import LocalExecutor
-from harness.runner import run_specs
-from harness.store import read_results
+from harness.store.cache import RunCache
+from harness.execute import Task, WorkerResult
+from harness.execute.local import LocalExecutor
+from harness.execute.runner import run_specs
+from harness.store.results import read_results
 
 TESTS = Path(__file__).parent
 ROOT = TESTS.parent
@@ -133,7 +133,7 @@ _SCRIPT = textwrap.dedent(
     import json, sys
     sys.path[:0] = [{tests!r}, {root!r}]
     from runner_toys import toy_specs
-    from harness.runner import run_specs
+    from harness.execute.runner import run_specs
     if __name__ == "__main__":
         try:
             out = run_specs(toy_specs(4, config={{"pause": {pause}}}), results_dir={folder!r},

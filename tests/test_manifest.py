@@ -14,9 +14,9 @@ import pytest
 from rich.console import Console
 
 from harness.cli import ExitCode, main
-from harness.errors import ManifestError
-from harness.manifest import load_manifest, parse_manifest
-from harness.policy import GatePolicy
+from harness.core.errors import ManifestError
+from harness.manifest.loader import load_manifest, parse_manifest
+from harness.manifest.policy import GatePolicy
 from harness.trainers.tabular import TabularQSettings
 
 MANIFESTS = Path(__file__).resolve().parent.parent / "manifests"

@@ -6,8 +6,8 @@ import gymnasium
 import numpy as np
 import pytest
 
-from harness.curves import Checkpoint, LearningCurve
-from harness.metrics import (
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.gate.metrics import (
     METRICS,
     ThresholdResult,
     area_under_curve,
@@ -80,7 +80,7 @@ def test_registry():
 def test_metrics_iv():
     with pytest.raises(ValueError, match=r"`fraction` must lie in \(0, 1\], got 0"):
         final_return(RISING, fraction=0)
-    with pytest.raises(TypeError, match=r"`curve` must be a harness.curves.LearningCurve, got list"):
+    with pytest.raises(TypeError, match=r"`curve` must be a harness.core.curves.LearningCurve, got list"):
         area_under_curve([1.0, 2.0])
     with pytest.raises(ValueError, match=r"`curve` has no checkpoints"):
         final_return(LearningCurve(()))

@@ -15,9 +15,9 @@ from rich.console import Console
 
 import harness
 from harness.cli import ExitCode, main
-from harness.errors import ManifestError
-from harness.manifest import load_manifest
-from harness.pins import Pins, drift, installed_pins, write_pins
+from harness.core.errors import ManifestError
+from harness.manifest.loader import load_manifest
+from harness.manifest.pins import Pins, drift, installed_pins, write_pins
 
 MANIFEST = """\
 # a comment at the top

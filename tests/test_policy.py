@@ -7,9 +7,9 @@ import math
 import gymnasium
 import pytest
 
-from harness.errors import ConfigError, ManifestError
-from harness.manifest import parse_manifest
-from harness.policy import DEFAULT_MARGIN_SHARE, GatePolicy, PublishedReference
+from harness.core.errors import ConfigError, ManifestError
+from harness.manifest.loader import parse_manifest
+from harness.manifest.policy import DEFAULT_MARGIN_SHARE, GatePolicy, PublishedReference
 
 MANIFEST = """
 name = "p"
@@ -140,7 +140,7 @@ def test_manifest_errors_name_file_and_key():
                        path="m.toml")
 
 
-@pytest.mark.parametrize("module", ["harness.policy", "harness.report.plot"])
+@pytest.mark.parametrize("module", ["harness.manifest.policy", "harness.report.plot"])
 def test_docstring_examples(module):
     import doctest
     import importlib

@@ -8,16 +8,16 @@ from pathlib import Path
 
 import pytest
 
-from harness.curves import Checkpoint
-from harness.errors import ManifestError
-from harness.manifest import load_manifest
+from harness.core.curves import Checkpoint
+from harness.core.errors import ManifestError
+from harness.manifest.loader import load_manifest
 from harness.trainers import dqn, tabular
 from harness.trainers.registry import BUILTIN_TRAINERS, load_entry_point, resolve_trainer
 
 USER_TRAINER = '''\
 import dataclasses
-from harness.curves import Checkpoint
-from harness.errors import ConfigError
+from harness.core.curves import Checkpoint
+from harness.core.errors import ConfigError
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

@@ -11,17 +11,17 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from harness.baseline import SeedCurve
-from harness.curves import Checkpoint, LearningCurve
-from harness.curveset import CurveSet
-from harness.policy import GatePolicy
+from harness.store.baseline import SeedCurve
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.gate.curveset import CurveSet
+from harness.manifest.policy import GatePolicy
 from harness.report.jsonreport import VERDICT_SCHEMA, verdict_json, verdict_text
 from harness.report.junit import render_junit
 from harness.report.markdown import render_markdown
 from harness.report.plot import INSTALL_HINT, PlotUnavailableError, curve_band, plot_curves
 from harness.report.terminal import VerdictReport
-from harness.seeding import plan_seeds
-from harness.verify import WHAT_A_PASS_MEANS, verify_sets
+from harness.core.seeding import plan_seeds
+from harness.gate.verify import WHAT_A_PASS_MEANS, verify_sets
 
 
 def _set(matrix, label, versions):

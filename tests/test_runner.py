@@ -9,13 +9,13 @@ from pathlib import Path
 import pytest
 from runner_toys import folder_bytes, toy_specs
 
-from harness.cache import RunCache
-from harness.errors import ManifestError
-from harness.executors import Task, WorkerResult
-from harness.executors.work import lockstep_size, run_task
-from harness.manifest import parse_manifest
-from harness.runner import _tasks, run_manifest, run_specs
-from harness.store import read_results, record_text
+from harness.store.cache import RunCache
+from harness.core.errors import ManifestError
+from harness.execute import Task, WorkerResult
+from harness.execute.work import lockstep_size, run_task
+from harness.manifest.loader import parse_manifest
+from harness.execute.runner import _tasks, run_manifest, run_specs
+from harness.store.results import read_results, record_text
 
 TABULAR = """
 name = "tiny-taxi"

@@ -11,8 +11,8 @@ from pathlib import Path
 import gymnasium
 import pytest
 
-from harness.baseline import read_baseline
-from harness.manifest import load_manifest
+from harness.store.baseline import read_baseline
+from harness.manifest.loader import load_manifest
 
 ROOT = Path(__file__).resolve().parents[1]
 MANIFESTS = sorted((ROOT / "manifests").glob("*.toml"))

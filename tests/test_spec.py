@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import json
 
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 
 
 def test_a_spec_read_back_from_json_equals_the_one_written():

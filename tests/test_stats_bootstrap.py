@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy import stats as sps
 
-from harness.errors import TooFewSeedsWarning
+from harness.core.errors import TooFewSeedsWarning
 from harness.stats import bootstrap_ci, bootstrap_mean, bootstrap_mean_difference
 
 # Efron & Tibshirani (1993), An Introduction to the Bootstrap, Table 14.1: the A scores (n = 26).

@@ -11,11 +11,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from harness.errors import TooFewSeedsWarning
+from harness.core.errors import TooFewSeedsWarning
 from harness.stats import bootstrap_mean, holm, max_statistic_test, probability_of_improvement
 
 MODULES = [
-    "harness.metrics",
+    "harness.gate.metrics",
     "harness.stats._result",
     "harness.stats.aggregate",
     "harness.stats.bootstrap",

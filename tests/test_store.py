@@ -12,9 +12,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from runner_toys import toy_specs
 
-from harness.curves import Checkpoint, LearningCurve
-from harness.errors import ResultsError
-from harness.store import (
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.core.errors import ResultsError
+from harness.store.results import (
     RECORD_SCHEMA,
     ResultSet,
     RunRecord,

@@ -9,11 +9,11 @@ import gymnasium as gym
 import numpy as np
 import pytest
 
-from harness.curves import Checkpoint
-from harness.errors import ConfigError
-from harness.manifest import Manifest, load_manifest
-from harness.seeding import RunSeed
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.core.curves import Checkpoint
+from harness.core.errors import ConfigError
+from harness.manifest.loader import Manifest, load_manifest
+from harness.core.seeding import RunSeed
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.trainers.envs import evaluate_policy, make_env
 from harness.trainers.tabular import TabularQSettings, greedy_action, learn, train
 

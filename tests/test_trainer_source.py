@@ -10,14 +10,14 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from harness.cache import RunCache
-from harness.curveset import CurveSet
-from harness.manifest import load_manifest
-from harness.policy import GatePolicy
-from harness.runner import run_manifest
-from harness.store import TRAINER_SOURCE
+from harness.store.cache import RunCache
+from harness.gate.curveset import CurveSet
+from harness.manifest.loader import load_manifest
+from harness.manifest.policy import GatePolicy
+from harness.execute.runner import run_manifest
+from harness.store.results import TRAINER_SOURCE
 from harness.trainers.registry import resolve_trainer, source_fingerprint
-from harness.verify import exact_check, provenance
+from harness.gate.verify import exact_check, provenance
 
 MANIFEST = """
 name = "edited"

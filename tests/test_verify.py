@@ -11,15 +11,15 @@ from hypothesis import given, settings
 from hypothesis import strategies as st_h
 from scipy import stats as st
 
-from harness.baseline import SeedCurve
-from harness.curves import Checkpoint, LearningCurve
-from harness.curveset import CurveSet, random_policy_return, task_threshold
-from harness.errors import BaselineError, ResultsError, RunFailedError
-from harness.policy import GatePolicy, PublishedReference
-from harness.seeding import plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec
-from harness.store import ResultSet, RunRecord
-from harness.verify import decide, verify_sets
+from harness.store.baseline import SeedCurve
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.core.errors import BaselineError, ResultsError, RunFailedError
+from harness.manifest.policy import GatePolicy, PublishedReference
+from harness.core.seeding import plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.store.results import ResultSet, RunRecord
+from harness.gate.verify import decide, verify_sets
 
 # NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.3, AUTO83B data (published raw data;
 # see /work/shared/CHECK-VALUES.md): miles per gallon of US and Japanese cars.

@@ -18,7 +18,7 @@ from rich.console import Console
 from rich.markup import escape
 
 import harness
-from harness.errors import HarnessError
+from harness.core.errors import HarnessError
 
 __all__ = ["COMMANDS", "ExitCode", "build_parser", "main"]
 

@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from harness.errors import HarnessError
-from harness.executors import EXECUTORS
+from harness.core.errors import HarnessError
+from harness.execute import EXECUTORS
 
 __all__ = ["add_execution_arguments", "execution_options", "positive_float", "positive_int"]
 
@@ -54,7 +54,7 @@ def execution_options(args: argparse.Namespace) -> dict[str, Any]:
     HarnessError
         ``--scheduler`` without ``--executor dask``.
     """
-    from harness.cache import RunCache
+    from harness.store.cache import RunCache
 
     if args.scheduler is not None and args.executor != "dask":
         raise HarnessError("--scheduler needs --executor dask")

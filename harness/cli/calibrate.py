@@ -3,7 +3,7 @@
 Trains (or reuses) many seeds of the manifest's unchanged configuration, applies
 the gate to many random pairs of disjoint groups of them (A/A comparisons) and
 reports the false-alarm rate, each metric's spread and power, and the metric
-with the best signal-to-noise (:mod:`harness.calibrate`). Exit codes: 0 done,
+with the best signal-to-noise (:mod:`harness.gate.calibrate`). Exit codes: 0 done,
 2 bad input (nothing written), 3 runs failed.
 """
 
@@ -16,11 +16,11 @@ from typing import Any
 
 from rich.console import Console
 
-from harness.calibrate import DEFAULT_SPLIT_SEED, DEFAULT_SPLITS
-from harness.calibration_set import SEED_FACTOR
+from harness.gate.calibrate import DEFAULT_SPLIT_SEED, DEFAULT_SPLITS
+from harness.gate.calibration_set import SEED_FACTOR
 from harness.cli import ExitCode
 from harness.cli.verify import add_policy_arguments, policy_from_args
-from harness.errors import HarnessError, RunFailedError
+from harness.core.errors import HarnessError, RunFailedError
 from harness.cli._options import add_execution_arguments, execution_options
 
 __all__ = ["parse_targets", "register"]
@@ -61,11 +61,11 @@ def parse_targets(text: str | None, metrics: tuple[str, ...]) -> dict[str, float
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.calibrate import plan_calibration, run_calibration
-    from harness.manifest import load_manifest
+    from harness.gate.calibrate import plan_calibration, run_calibration
+    from harness.manifest.loader import load_manifest
     from harness.report.calibration import CalibrationReport, render_calibration_markdown
     from harness.report.progress import RunProgress
-    from harness._atomic import atomic_write_text
+    from harness.core.atomic import atomic_write_text
 
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)

@@ -16,20 +16,20 @@ from rich.console import Console
 
 from harness.cli import ExitCode
 from harness.cli.verify import add_policy_arguments, add_report_arguments, finish, policy_from_args
-from harness.errors import RunFailedError
+from harness.core.errors import RunFailedError
 
 __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.curveset import CurveSet, random_policy_return, task_threshold
-    from harness.policy import GatePolicy
-    from harness.store import read_results
-    from harness.verify import verify_sets
+    from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+    from harness.manifest.policy import GatePolicy
+    from harness.store.results import read_results
+    from harness.gate.verify import verify_sets
 
     base_policy = GatePolicy()
     if args.manifest:
-        from harness.manifest import load_manifest
+        from harness.manifest.loader import load_manifest
 
         base_policy = load_manifest(args.manifest).check
     policy = policy_from_args(base_policy, args)

@@ -14,9 +14,9 @@ from rich.console import Console
 from rich.table import Table
 
 from harness.cli import ExitCode
-from harness.errors import ManifestError
-from harness.manifest import load_manifest
-from harness.pins import DriftRow, drift, installed_pins
+from harness.core.errors import ManifestError
+from harness.manifest.loader import load_manifest
+from harness.manifest.pins import DriftRow, drift, installed_pins
 
 __all__ = ["format_drift", "register"]
 

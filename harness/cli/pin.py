@@ -13,8 +13,8 @@ from rich.console import Console
 from rich.table import Table
 
 from harness.cli import ExitCode
-from harness.manifest import load_manifest
-from harness.pins import DriftRow, drift, installed_pins, write_pins
+from harness.manifest.loader import load_manifest
+from harness.manifest.pins import DriftRow, drift, installed_pins, write_pins
 
 __all__ = ["format_pin_changes", "register"]
 

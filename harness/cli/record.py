@@ -18,15 +18,15 @@ from rich.console import Console
 
 from harness.cli import ExitCode
 from harness.cli.verify import add_run_arguments, obtain_results
-from harness.errors import RunFailedError
+from harness.core.errors import RunFailedError
 
 __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
-    from harness.manifest import load_manifest
-    from harness.store import read_index
+    from harness.store.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
+    from harness.manifest.loader import load_manifest
+    from harness.store.results import read_index
 
     manifest = load_manifest(args.manifest)
     path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)

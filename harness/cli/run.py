@@ -21,9 +21,9 @@ __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.manifest import load_manifest
+    from harness.manifest.loader import load_manifest
     from harness.report.progress import RunProgress, RunSummary
-    from harness.runner import run_manifest
+    from harness.execute.runner import run_manifest
 
     manifest = load_manifest(args.manifest)
     options = execution_options(args)

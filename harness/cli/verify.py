@@ -17,9 +17,9 @@ from rich.console import Console
 
 from harness.cli import ExitCode
 from harness.cli._options import add_execution_arguments, execution_options
-from harness.errors import HarnessError, RunFailedError
-from harness.policy import KNOWN_METRICS, GatePolicy
-from harness.verify import Verdict
+from harness.core.errors import HarnessError, RunFailedError
+from harness.manifest.policy import KNOWN_METRICS, GatePolicy
+from harness.gate.verify import Verdict
 
 __all__ = ["add_policy_arguments", "add_report_arguments", "add_run_arguments", "finish", "obtain_results",
            "policy_from_args", "register"]
@@ -48,15 +48,15 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
     RunFailedError
         If any run failed (the message lists the seeds and reasons).
     """
-    from harness.curveset import last_line
-    from harness.store import read_results
+    from harness.gate.curveset import last_line
+    from harness.store.results import read_results
 
     default = Path("results") / manifest.name
     if args.no_run:
         folder = Path(args.results) if args.results else default
         return read_results(folder), folder
     from harness.report.progress import RunProgress
-    from harness.runner import run_manifest
+    from harness.execute.runner import run_manifest
 
     folder = Path(args.results) if args.results else default
     options = execution_options(args)
@@ -121,7 +121,7 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
     from harness.report.markdown import render_markdown
     from harness.report.plot import PlotUnavailableError, plot_curves
     from harness.report.terminal import VerdictReport
-    from harness._atomic import atomic_write_text
+    from harness.core.atomic import atomic_write_text
 
     console.print(VerdictReport(verdict))
     writers: list[tuple[str | None, Callable[[], str]]] = [
@@ -144,9 +144,9 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.baseline import default_baseline_path
-    from harness.manifest import load_manifest
-    from harness.verify import baseline_for, verify_manifest
+    from harness.store.baseline import default_baseline_path
+    from harness.manifest.loader import load_manifest
+    from harness.gate.verify import baseline_for, verify_manifest
 
     try:
         _check_report_paths(args)

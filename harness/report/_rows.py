@@ -6,8 +6,8 @@ import json
 import math
 from typing import Any
 
-from harness.policy import DEFAULT_MARGIN_SHARE
-from harness.verify import Verdict
+from harness.manifest.policy import DEFAULT_MARGIN_SHARE
+from harness.gate.verify import Verdict
 
 __all__ = ["CHECK_HEADER", "check_notes", "check_rows", "config_rows", "drift_rows", "num", "policy_line", "value"]
 

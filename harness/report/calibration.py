@@ -9,7 +9,7 @@ from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from harness.calibrate import WHAT_CALIBRATION_SHOWS, Calibration, MetricNoise
+from harness.gate.calibrate import WHAT_CALIBRATION_SHOWS, Calibration, MetricNoise
 from harness.report._rows import num
 
 __all__ = ["ROWS_NOTE", "CalibrationReport", "calibration_lines", "metric_rows", "render_calibration_markdown"]

@@ -6,7 +6,7 @@ import dataclasses
 import json
 from typing import Any
 
-from harness.verify import WHAT_A_PASS_MEANS, Verdict
+from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
 
 __all__ = ["VERDICT_SCHEMA", "verdict_json", "verdict_text"]
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import xml.etree.ElementTree as ET
 
-from harness.verify import WHAT_A_PASS_MEANS, Verdict
+from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
 
 __all__ = ["render_junit"]
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from harness.report._rows import CHECK_HEADER, check_notes, check_rows, config_rows, drift_rows, policy_line
-from harness.verify import WHAT_A_PASS_MEANS, Verdict
+from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
 
 __all__ = ["render_markdown"]
 

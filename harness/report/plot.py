@@ -14,9 +14,9 @@ from pathlib import Path
 import numpy as np
 from scipy import stats as _st
 
-from harness._atomic import atomic_path
-from harness.curveset import CurveSet
-from harness.errors import HarnessError
+from harness.core.atomic import atomic_path
+from harness.gate.curveset import CurveSet
+from harness.core.errors import HarnessError
 
 __all__ = ["INSTALL_HINT", "PlotUnavailableError", "curve_band", "plot_curves"]
 

@@ -1,10 +1,10 @@
 """Live progress of ``rlharness run`` and its closing summary table.
 
-:class:`RunProgress` is an ``on_event`` callback for :func:`harness.runner.run_specs`:
+:class:`RunProgress` is an ``on_event`` callback for :func:`harness.execute.runner.run_specs`:
 one row per seed (environment steps done, latest mean evaluation return,
 elapsed time) and an overall row with the ETA. It draws nothing when the
 console is not a terminal (CI logs get the summary table only).
-:class:`RunSummary` renders a :class:`~harness.runner.RunOutcome` as a table:
+:class:`RunSummary` renders a :class:`~harness.execute.runner.RunOutcome` as a table:
 per seed the status, where the result came from, final return, area under the
 curve and training wall time, and the reason of every failure.
 """
@@ -25,9 +25,9 @@ from rich.progress import (
 from rich.table import Table
 from rich.text import Text
 
-from harness.executors import RunEvent
-from harness.metrics import area_under_curve, final_return
-from harness.runner import RunOutcome
+from harness.execute import RunEvent
+from harness.gate.metrics import area_under_curve, final_return
+from harness.execute.runner import RunOutcome
 
 __all__ = ["RunProgress", "RunSummary", "format_return"]
 
@@ -41,7 +41,7 @@ def format_return(value: float | None) -> str:
 
 
 class RunProgress:
-    """Live per-seed progress fed with :class:`~harness.executors.RunEvent` values.
+    """Live per-seed progress fed with :class:`~harness.execute.RunEvent` values.
 
     Parameters
     ----------

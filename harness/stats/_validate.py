@@ -14,7 +14,7 @@ from typing import Literal
 
 import numpy as np
 
-from harness.errors import TooFewSeedsWarning
+from harness.core.errors import TooFewSeedsWarning
 
 __all__ = [
     "ALTERNATIVES",
@@ -123,7 +123,7 @@ def make_rng(rng: object) -> np.random.Generator:
 
 
 def warn_few(n: int, minimum: int, what: str) -> None:
-    """Emit :class:`~harness.errors.TooFewSeedsWarning` when ``n < minimum``."""
+    """Emit :class:`~harness.core.errors.TooFewSeedsWarning` when ``n < minimum``."""
     if n < minimum:
         warnings.warn(
             TooFewSeedsWarning(

@@ -240,7 +240,7 @@ def bootstrap_ci(
     ``z0 = Φ⁻¹(share of resamples below the estimate, ties counted half)`` and
     the jackknife acceleration ``a``. If every resample gives the same value
     (e.g. constant data), the interval is that single point. With fewer than
-    10 values in a sample a :class:`~harness.errors.TooFewSeedsWarning` is
+    10 values in a sample a :class:`~harness.core.errors.TooFewSeedsWarning` is
     emitted: bootstrap intervals are too narrow with few seeds (Colas et al. 2018).
 
     References

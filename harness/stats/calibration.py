@@ -15,7 +15,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from harness.errors import TooFewSeedsWarning
+from harness.core.errors import TooFewSeedsWarning
 from harness.stats._validate import check_positive_int, check_probability, make_rng
 from harness.stats.bootstrap import bootstrap_mean_difference
 from harness.stats.equivalence import equivalence_test

@@ -2,7 +2,7 @@
 
 The interface every trainer implements, built-in or user-written, is a plain
 function ``train(run: RunSpec) -> Iterable[Checkpoint]`` that yields one
-:class:`~harness.curves.Checkpoint` per step of ``run.checkpoint_steps()``, in
+:class:`~harness.core.curves.Checkpoint` per step of ``run.checkpoint_steps()``, in
 order. Trainers know nothing of statistics or storage. All randomness must come
 from ``run.streams()`` and ``run.evaluation.episode_seeds()``.
 

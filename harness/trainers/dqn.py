@@ -33,10 +33,10 @@ import gymnasium as gym
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from harness import config
-from harness.curves import Checkpoint
-from harness.errors import ConfigError, did_you_mean
-from harness.spec import RunSpec
+from harness.core import config
+from harness.core.curves import Checkpoint
+from harness.core.errors import ConfigError, did_you_mean
+from harness.core.spec import RunSpec
 from harness.trainers.envs import LeanEnv, evaluate_stacked
 from harness.trainers.nn import MLP, Adam, Layout, init_params
 from harness.trainers.replay import ReplayMemory

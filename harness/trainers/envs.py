@@ -16,7 +16,7 @@ import gymnasium as gym
 import numpy as np
 from gymnasium.wrappers import OrderEnforcing, PassiveEnvChecker, TimeLimit
 
-from harness.spec import TaskSpec
+from harness.core.spec import TaskSpec
 
 __all__ = ["LeanEnv", "evaluate_policy", "evaluate_stacked", "make_env"]
 

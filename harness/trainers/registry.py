@@ -28,8 +28,8 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from harness import config
-from harness.errors import ConfigError, ManifestError, did_you_mean
+from harness.core import config
+from harness.core.errors import ConfigError, ManifestError, did_you_mean
 
 __all__ = [
     "BUILTIN_TRAINERS",
@@ -212,7 +212,7 @@ def resolve_trainer(
     >>> resolve_trainer("tabluar-q")
     Traceback (most recent call last):
     ...
-    harness.errors.ManifestError: [trainer.use]: unknown trainer 'tabluar-q'. Did you mean 'tabular-q'? Valid choices: 'dqn', 'tabular-q'. A trainer of your own is named as 'package.module:function'.
+    harness.core.errors.ManifestError: [trainer.use]: unknown trainer 'tabluar-q'. Did you mean 'tabular-q'? Valid choices: 'dqn', 'tabular-q'. A trainer of your own is named as 'package.module:function'.
     """
     if not isinstance(name, str):
         raise ManifestError(f"must be a string, got {name!r}", path=path, key=key)

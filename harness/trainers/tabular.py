@@ -28,9 +28,9 @@ from collections.abc import Iterator, Sequence
 import gymnasium as gym
 import numpy as np
 
-from harness.curves import Checkpoint
-from harness.errors import ConfigError
-from harness.spec import RunSpec
+from harness.core.curves import Checkpoint
+from harness.core.errors import ConfigError
+from harness.core.spec import RunSpec
 from harness.trainers.envs import evaluate_policy, make_env
 from harness.trainers.schedule import linear_decay
 

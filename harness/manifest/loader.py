@@ -1,14 +1,14 @@
 """Manifests: TOML in, a validated, fully resolved :class:`Manifest` out.
 
 The format is documented in DEVELOPERS.md ("The manifest format"). Each table
-is resolved through :mod:`harness.config` against a schema (the private
+is resolved through :mod:`harness.core.config` against a schema (the private
 ``_...Table`` dataclasses here, the trainer's settings dataclass, and
-:class:`harness.policy.GatePolicy` / :class:`harness.policy.PublishedReference`),
-so every problem is reported as a :class:`~harness.errors.ManifestError` naming
+:class:`harness.manifest.policy.GatePolicy` / :class:`harness.manifest.policy.PublishedReference`),
+so every problem is reported as a :class:`~harness.core.errors.ManifestError` naming
 the file, the dotted key and the fix. Nothing is trained or written while
 loading.
 
-The config hash is ``harness.spec.sha256_of(manifest.resolved_config())``: the
+The config hash is ``harness.core.spec.sha256_of(manifest.resolved_config())``: the
 task (step limit filled in from gymnasium's registry), the trainer, its settings
 with every default filled in, the budget, the evaluation plan and the planned
 seeds. ``name``, ``description``, ``[check]``, ``[[reference]]`` and ``[pins]``
@@ -31,12 +31,12 @@ from typing import Any
 import gymnasium as gym
 from gymnasium.envs.registration import load_env_creator
 
-from harness import config
-from harness.errors import ConfigError, ManifestError, did_you_mean
-from harness.pins import Pins
-from harness.policy import GatePolicy, PublishedReference
-from harness.seeding import RunSeed, plan_seeds
-from harness.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.core import config
+from harness.core.errors import ConfigError, ManifestError, did_you_mean
+from harness.manifest.pins import Pins
+from harness.manifest.policy import GatePolicy, PublishedReference
+from harness.core.seeding import RunSeed, plan_seeds
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
 from harness.trainers.registry import resolve_trainer
 
 __all__ = ["Manifest", "load_manifest", "parse_manifest"]
@@ -184,7 +184,7 @@ class Manifest:
         return _resolved_config(self.task, self.trainer, self.settings, self.budget, self.evaluation, self.seeds)
 
     def runs(self) -> tuple[RunSpec, ...]:
-        """One :class:`~harness.spec.RunSpec` per seed, in manifest order."""
+        """One :class:`~harness.core.spec.RunSpec` per seed, in manifest order."""
         return tuple(
             RunSpec(
                 manifest=self.name,

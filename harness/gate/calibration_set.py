@@ -13,7 +13,7 @@ Runs of the same spec (apart from the manifest's name and config hash) already
 stored in the calibration folder (an earlier calibration with another seed
 count), in the manifest's own results folder, or in the run cache under the
 manifest's own spec are reused when they were trained with the installed
-versions and the same trainer source (``harness.executors.work.run_versions``):
+versions and the same trainer source (``harness.execute.work.run_versions``):
 a run is a function of its spec, versions and code (the determinism contract),
 so reusing it gives the same bytes as training it.
 """
@@ -27,11 +27,11 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from harness.cache import RunCache
-from harness.seeding import RunSeed
-from harness.spec import canonical_json, sha256_of
+from harness.store.cache import RunCache
+from harness.core.seeding import RunSeed
+from harness.core.spec import canonical_json, sha256_of
 from harness.stats._validate import check_positive_int
-from harness.store import RunRecord, read_record, record_file_name, same_spec, write_record
+from harness.store.results import RunRecord, read_record, record_file_name, same_spec, write_record
 
 __all__ = ["SEED_FACTOR", "calibration_manifest", "calibration_seeds", "reuse_stored_runs"]
 
@@ -44,7 +44,7 @@ def calibration_seeds(own: Sequence[RunSeed], n_seeds: int) -> tuple[RunSeed, ..
 
     Examples
     --------
-    >>> from harness.seeding import plan_seeds
+    >>> from harness.core.seeding import plan_seeds
     >>> [s.label for s in calibration_seeds(plan_seeds(count=2, root=9), 4)]
     ['9/0', '9/1', '9/2', '9/3']
     >>> [s.label for s in calibration_seeds(plan_seeds(seeds=[3, 5]), 4)]
@@ -120,7 +120,7 @@ def reuse_stored_runs(
     """Copy finished runs of the calibration's specs into its results folder, where the runner resumes them.
 
     A run is reused when a successful record of the same spec (apart from the manifest's name
-    and config hash) trained with ``versions`` (``harness.executors.work.run_versions``: the
+    and config hash) trained with ``versions`` (``harness.execute.work.run_versions``: the
     installed versions and the trainer's source fingerprint) is found, in order: in ``folder`` itself (an
     earlier calibration with another seed count), in each ``stored`` folder (the manifest's own
     results), or in ``cache`` under the manifest's own spec.

@@ -1,7 +1,7 @@
 """What one training run is: the task, the trainer and its resolved config, budget, evaluation, seed.
 
 A :class:`RunSpec` is all a trainer receives. It is built from a manifest by
-``harness.manifest`` (one per seed) and is JSON-serialisable so that it can be
+``harness.manifest.loader`` (one per seed) and is JSON-serialisable so that it can be
 hashed for the run cache and shipped to worker processes or a cluster.
 """
 
@@ -13,7 +13,7 @@ import json
 from collections.abc import Mapping
 from typing import Any
 
-from harness.seeding import RunSeed, RunStreams, episode_seeds, run_streams
+from harness.core.seeding import RunSeed, RunStreams, episode_seeds, run_streams
 
 __all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "sha256_of"]
 
@@ -109,7 +109,7 @@ class RunSpec:
     config
         The trainer's fully resolved configuration (defaults filled in), JSON-compatible.
     config_hash
-        SHA-256 of the manifest's resolved configuration (see ``harness.manifest``).
+        SHA-256 of the manifest's resolved configuration (see ``harness.manifest.loader``).
     seed, index
         The run's seed material and its position in the manifest's seed list.
     """

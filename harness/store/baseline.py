@@ -5,7 +5,7 @@ laid out to be read in a code review: per-seed curves (one line per
 checkpoint), the resolved configuration and its hash, the versions the curves
 were produced with, the platform, the date, the rl-harness version and a
 checksum of the content. The checksum is ``sha256:`` of the canonical JSON
-(``harness.spec.canonical_json``) of every field except ``checksum`` itself, so
+(``harness.core.spec.canonical_json``) of every field except ``checksum`` itself, so
 reformatting the file keeps it valid while changing any value (or cutting the
 file short) makes :func:`read_baseline` refuse it.
 
@@ -25,11 +25,11 @@ from pathlib import Path
 from typing import Any
 
 from harness import __version__
-from harness._atomic import atomic_write_text
-from harness.curves import LearningCurve
-from harness.errors import BaselineError
-from harness.seeding import RunSeed
-from harness.spec import sha256_of
+from harness.core.atomic import atomic_write_text
+from harness.core.curves import LearningCurve
+from harness.core.errors import BaselineError
+from harness.core.seeding import RunSeed
+from harness.core.spec import sha256_of
 
 __all__ = [
     "BASELINE_SCHEMA",

@@ -1,10 +1,10 @@
 """The run cache: finished runs stored under a content key so that unchanged work is never redone.
 
 The key of a run is the SHA-256 of the canonical JSON of its
-:class:`~harness.spec.RunSpec` (task, trainer, resolved config, budget,
+:class:`~harness.core.spec.RunSpec` (task, trainer, resolved config, budget,
 evaluation, seed, config hash), the installed versions that shape its numbers
-(``harness.pins``) and the rl-harness version. An entry is the run's result
-file exactly as :mod:`harness.store` writes it, so a cache hit gives the same
+(``harness.manifest.pins``) and the rl-harness version. An entry is the run's result
+file exactly as :mod:`harness.store.results` writes it, so a cache hit gives the same
 bytes as training again.
 
 The cache never decides correctness: an entry that is missing, damaged, or whose
@@ -28,10 +28,10 @@ from pathlib import Path
 from filelock import FileLock
 
 from harness import __version__
-from harness.errors import ResultsError
-from harness.spec import RunSpec, sha256_of
-from harness._atomic import atomic_write_text
-from harness.store import RunRecord, record_from_json, record_text, same_spec
+from harness.core.errors import ResultsError
+from harness.core.spec import RunSpec, sha256_of
+from harness.core.atomic import atomic_write_text
+from harness.store.results import RunRecord, record_from_json, record_text, same_spec
 
 __all__ = ["DEFAULT_CACHE_DIR", "RunCache", "cache_key"]
 

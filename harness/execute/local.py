@@ -25,8 +25,8 @@ import traceback
 from collections.abc import Sequence
 from multiprocessing.context import BaseContext
 
-from harness.executors.base import RunEvent, Task, WorkerResult
-from harness.executors.work import run_task
+from harness.execute.base import RunEvent, Task, WorkerResult
+from harness.execute.work import run_task
 
 __all__ = ["LocalExecutor", "default_context", "worker_main"]
 

@@ -4,7 +4,7 @@
 unchanged configuration, the manifest's, splits them many times at random into
 two disjoint groups of the manifest's seed count and applies the manifest's own
 gate policy to each pair exactly as ``verify`` does (its statistical layer:
-:func:`harness.compare.compare_sets` then :func:`harness.verify.decide`). Both
+:func:`harness.gate.compare.compare_sets` then :func:`harness.gate.verify.decide`). Both
 groups come from the same configuration, so every failed gate is a false alarm
 (an A/A comparison). It reports
 
@@ -20,7 +20,7 @@ groups come from the same configuration, so every failed gate is a false alarm
   relative to its target difference.
 
 The calibration set (which seeds, the derived manifest ``<name>-calibration``,
-which stored runs are reused) is :mod:`harness.calibration_set`.
+which stored runs are reused) is :mod:`harness.gate.calibration_set`.
 """
 
 from __future__ import annotations
@@ -35,15 +35,15 @@ from typing import Any
 import numpy as np
 
 from harness import stats
-from harness.cache import RunCache
-from harness.calibration_set import calibration_manifest, reuse_stored_runs
-from harness.compare import metric_values, compare_sets
-from harness.curveset import CurveSet, random_policy_return, task_threshold
-from harness.errors import ConfigError
-from harness.policy import GatePolicy
+from harness.store.cache import RunCache
+from harness.gate.calibration_set import calibration_manifest, reuse_stored_runs
+from harness.gate.compare import metric_values, compare_sets
+from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.core.errors import ConfigError
+from harness.manifest.policy import GatePolicy
 from harness.stats._validate import check_positive_int
 from harness.stats.proportion import BinomialRate
-from harness.verify import decide
+from harness.gate.verify import decide
 
 __all__ = [
     "DEFAULT_SPLITS",
@@ -314,9 +314,9 @@ def calibrate_curves(
        Biometrika 26:404–413 (the interval of the rate).
     """
     if not isinstance(curves, CurveSet):
-        raise TypeError(f"`curves` must be a harness.curveset.CurveSet, got {type(curves).__name__}")
+        raise TypeError(f"`curves` must be a harness.gate.curveset.CurveSet, got {type(curves).__name__}")
     if not isinstance(policy, GatePolicy):
-        raise TypeError(f"`policy` must be a harness.policy.GatePolicy, got {type(policy).__name__}")
+        raise TypeError(f"`policy` must be a harness.manifest.policy.GatePolicy, got {type(policy).__name__}")
     g = check_positive_int(group_size, "group_size", minimum=2)
     pairs = split_groups(len(curves.runs), g, splits=splits, seed=split_seed)
     goals = _targets_iv(targets, policy.metrics)
@@ -446,15 +446,15 @@ def run_calibration(
     stored_dir
         The manifest's own results folder, whose runs are reused (default ``results/<name>/``).
     cache, use_cache, run_options
-        As :func:`harness.runner.run_specs` (``workers``, ``executor``, ``on_event``, ...).
+        As :func:`harness.execute.runner.run_specs` (``workers``, ``executor``, ``on_event``, ...).
 
     Raises
     ------
     RunFailedError
         If any calibration run failed (never calibrated on fewer seeds than asked).
     """
-    from harness.executors.work import run_versions
-    from harness.runner import DEFAULT_RESULTS_DIR, run_manifest
+    from harness.execute.work import run_versions
+    from harness.execute.runner import DEFAULT_RESULTS_DIR, run_manifest
 
     manifest, derived = plan.manifest, plan.derived
     folder = Path(results_dir) if results_dir is not None else Path(DEFAULT_RESULTS_DIR) / derived.name

@@ -7,7 +7,7 @@ paper (mean, sd or standard error, number of seeds, where it was published),
 against which a rerun can be tested instead of a stored baseline.
 
 Both are frozen values; ``__post_init__`` raises
-:class:`harness.errors.ConfigError` naming the key, and ``from_table`` also
+:class:`harness.core.errors.ConfigError` naming the key, and ``from_table`` also
 rejects unknown keys with a "did you mean" hint.
 
 The margin
@@ -29,11 +29,11 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
-from harness.errors import ConfigError, did_you_mean
+from harness.core.errors import ConfigError, did_you_mean
 
 __all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "GatePolicy", "PublishedReference"]
 
-#: Metric names understood by the checks (see ``harness.metrics.METRICS``).
+#: Metric names understood by the checks (see ``harness.gate.metrics.METRICS``).
 KNOWN_METRICS = ("final", "auc", "steps-to-threshold")
 
 #: Default margin: a tenth of the span between random-policy return and reward threshold.

@@ -3,7 +3,7 @@
 A results folder (default ``results/<manifest name>/``) holds
 
 ``seed-<label>.json``
-    One run: its :class:`~harness.spec.RunSpec`, status, learning curve (per
+    One run: its :class:`~harness.core.spec.RunSpec`, status, learning curve (per
     checkpoint the step, the mean and every evaluation return), failure reason
     and the installed versions it ran with. Nothing time-dependent goes in, so
     the same run gives the same bytes whatever the worker count, executor,
@@ -15,7 +15,7 @@ A results folder (default ``results/<manifest name>/``) holds
 
 Every file carries a ``schema`` field; readers refuse unknown schemas, files
 whose checksum does not match the index and records that contradict the
-index, with a :class:`~harness.errors.ResultsError` naming the file and the fix.
+index, with a :class:`~harness.core.errors.ResultsError` naming the file and the fix.
 Writes go to a temporary file in the same folder and are renamed into place.
 """
 
@@ -31,10 +31,10 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from harness.curves import Checkpoint, LearningCurve
-from harness._atomic import atomic_write_text
-from harness.errors import ResultsError
-from harness.spec import RunSpec, canonical_json
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.core.atomic import atomic_write_text
+from harness.core.errors import ResultsError
+from harness.core.spec import RunSpec, canonical_json
 
 __all__ = [
     "INDEX_FILE",
@@ -81,7 +81,7 @@ class RunRecord:
     failure
         Why the run failed (the traceback for exceptions); ``None`` when it succeeded.
     versions
-        The installed versions the run trained with (see ``harness.pins``), and under
+        The installed versions the run trained with (see ``harness.manifest.pins``), and under
         :data:`TRAINER_SOURCE` the fingerprint of the trainer's source code.
     """
 

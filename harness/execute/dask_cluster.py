@@ -1,6 +1,6 @@
 """The dask executor: the same tasks on a ``dask.distributed`` cluster.
 
-Each task is one call of :func:`harness.executors.work.run_task` on a cluster
+Each task is one call of :func:`harness.execute.work.run_task` on a cluster
 worker, with JSON text in and plain data out, so the results are the bytes the
 local executor produces. Without a scheduler address a
 :class:`distributed.LocalCluster` is started (one single-threaded worker process
@@ -25,8 +25,8 @@ import asyncio
 import time
 from collections.abc import Sequence
 
-from harness.executors.base import RunEvent, Task, WorkerResult
-from harness.executors.work import run_task
+from harness.execute.base import RunEvent, Task, WorkerResult
+from harness.execute.work import run_task
 
 __all__ = ["DaskExecutor", "MISSING_DASK"]
 

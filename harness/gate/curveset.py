@@ -15,9 +15,9 @@ from typing import Any
 
 import numpy as np
 
-from harness.baseline import Baseline, SeedCurve
-from harness.errors import ResultsError, RunFailedError
-from harness.spec import EvaluationPlan, TaskSpec
+from harness.store.baseline import Baseline, SeedCurve
+from harness.core.errors import ResultsError, RunFailedError
+from harness.core.spec import EvaluationPlan, TaskSpec
 
 __all__ = ["CurveSet", "last_line", "random_policy_return", "task_threshold"]
 

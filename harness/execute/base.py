@@ -17,8 +17,8 @@ import json
 from collections.abc import Sequence
 from typing import Protocol
 
-from harness.curves import LearningCurve
-from harness.spec import RunSpec
+from harness.core.curves import LearningCurve
+from harness.core.spec import RunSpec
 
 __all__ = ["EVENT_KINDS", "Executor", "RunEvent", "WorkerResult", "Task"]
 
@@ -111,7 +111,7 @@ class WorkerResult:
 
     @classmethod
     def from_plain(cls, data: dict) -> tuple[WorkerResult, ...]:
-        """Decode a worker's reply (see :func:`harness.executors.work.run_task`)."""
+        """Decode a worker's reply (see :func:`harness.execute.work.run_task`)."""
         return tuple(
             cls(
                 index=int(r["index"]),

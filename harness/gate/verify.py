@@ -9,11 +9,11 @@ Layers, each reported:
    differ (a numerics change or nondeterminism). Skipped, and said why,
    otherwise: with other library versions the statistics decide.
 3. **Statistical checks** per metric and per published reference, Holm-corrected
-   (see :mod:`harness.compare`).
+   (see :mod:`harness.gate.compare`).
 4. **Where the curves part** — the first checkpoint range where the candidate is
    significantly below (family-wise error controlled).
 
-The **gate** is a policy over those verdicts (:class:`harness.policy.GatePolicy`):
+The **gate** is a policy over those verdicts (:class:`harness.manifest.policy.GatePolicy`):
 it fails when a check is significantly worse (unless ``ignore_small`` and the
 difference lies inside the margin) and, in ``strict`` mode, when one is
 inconclusive.
@@ -30,13 +30,13 @@ from typing import Any
 
 import numpy as np
 
-from harness.baseline import Baseline, read_baseline
-from harness.compare import Divergence, MetricCheck, StatisticalComparison, compare_sets
-from harness.curveset import CurveSet, random_policy_return, task_threshold
-from harness.errors import BaselineError, ResultsError
-from harness.policy import GatePolicy, PublishedReference
-from harness.spec import canonical_json
-from harness.store import TRAINER_SOURCE
+from harness.store.baseline import Baseline, read_baseline
+from harness.gate.compare import Divergence, MetricCheck, StatisticalComparison, compare_sets
+from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.core.errors import BaselineError, ResultsError
+from harness.manifest.policy import GatePolicy, PublishedReference
+from harness.core.spec import canonical_json
+from harness.store.results import TRAINER_SOURCE
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
@@ -379,7 +379,7 @@ def rerun_and_verify(
 ) -> Verdict:
     """Check the baseline, rerun the manifest (reusing results that match) and verify it.
 
-    ``run_options`` go to :func:`harness.runner.run_manifest` (``workers``, ``use_cache``, ...).
+    ``run_options`` go to :func:`harness.execute.runner.run_manifest` (``workers``, ``use_cache``, ...).
 
     Raises
     ------
@@ -388,7 +388,7 @@ def rerun_and_verify(
     RunFailedError
         If any run failed.
     """
-    from harness.runner import run_manifest
+    from harness.execute.runner import run_manifest
 
     baseline = baseline_for(manifest, baseline_path)
     outcome = run_manifest(manifest, results_dir=results_dir, **run_options)

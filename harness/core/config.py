@@ -3,9 +3,9 @@
 A schema is a ``@dataclass(frozen=True, slots=True)``: its field names are the
 keys, its defaults are the defaults, its annotations are the types and its
 ``__post_init__`` checks ranges by raising
-``harness.errors.ConfigError(message, key="field")``. :func:`resolve` turns a
+``harness.core.errors.ConfigError(message, key="field")``. :func:`resolve` turns a
 mapping read from TOML into an instance of the schema and reports every problem
-as a :class:`~harness.errors.ConfigError` carrying the file, the full dotted key
+as a :class:`~harness.core.errors.ConfigError` carrying the file, the full dotted key
 path (``"trainer.settings.discount"``) and the fix.
 
 Supported annotations: ``bool``, ``int``, ``float`` (integers are accepted and
@@ -25,7 +25,7 @@ import typing
 from collections.abc import Mapping
 from typing import Any, TypeVar
 
-from harness.errors import ConfigError, ManifestError, did_you_mean
+from harness.core.errors import ConfigError, ManifestError, did_you_mean
 
 __all__ = ["check_json_value", "resolve", "to_json"]
 
@@ -133,7 +133,7 @@ def _convert(value: Any, hint: Any, *, path: str | None, key: str) -> Any:
         if type(value) is hint:
             return value
     else:
-        raise TypeError(f"schema annotation {hint!r} at {key!r} is not supported by harness.config")
+        raise TypeError(f"schema annotation {hint!r} at {key!r} is not supported by harness.core.config")
     raise ConfigError(f"must be {_TYPE_WORDS[hint]}, got {_describe(value)}", path=path, key=key)
 
 
@@ -173,7 +173,7 @@ def resolve(schema: type[T], data: Any, *, path: str | None = None, key: str = "
     >>> resolve(Point, {"y": 1}, path="m.toml", key="point")
     Traceback (most recent call last):
     ...
-    harness.errors.ConfigError: m.toml [point.y]: unknown key 'y'. Valid choices: 'tags', 'x'. Remove it or fix its spelling.
+    harness.core.errors.ConfigError: m.toml [point.y]: unknown key 'y'. Valid choices: 'tags', 'x'. Remove it or fix its spelling.
     """
     if not (isinstance(schema, type) and dataclasses.is_dataclass(schema)):
         raise TypeError(f"`schema` must be a dataclass type, got {schema!r}")

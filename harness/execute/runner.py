@@ -4,7 +4,7 @@ For each planned run, in order of preference:
 
 1. **resumed**: the results folder already holds its file from an earlier,
    interrupted or finished, run of the same spec with the same installed versions;
-2. **cache**: the run cache holds it (see :mod:`harness.cache`);
+2. **cache**: the run cache holds it (see :mod:`harness.store.cache`);
 3. **trained**: it is sent to an executor (local processes or dask), grouped in
    lockstep batches when the trainer offers ``train_lockstep``.
 
@@ -20,7 +20,7 @@ seed has a record, and removed before anything is trained: a folder with an inde
 is complete and consistent.
 
 Two runners sharing a cache do not train the same run twice: a run is trained
-only under its file lock in the cache (:meth:`~harness.cache.RunCache.claim`);
+only under its file lock in the cache (:meth:`~harness.store.cache.RunCache.claim`);
 a runner that finds a run claimed trains others first, then waits for the
 lock and takes the result from the cache.
 """
@@ -40,12 +40,12 @@ from pathlib import Path
 
 from filelock import FileLock, Timeout
 
-from harness.cache import RunCache
-from harness.errors import ResultsError
-from harness.executors import Executor, RunEvent, Task, WorkerResult, make_executor
-from harness.executors.work import lockstep_size, run_versions
-from harness.spec import RunSpec
-from harness.store import (
+from harness.store.cache import RunCache
+from harness.core.errors import ResultsError
+from harness.execute import Executor, RunEvent, Task, WorkerResult, make_executor
+from harness.execute.work import lockstep_size, run_versions
+from harness.core.spec import RunSpec
+from harness.store.results import (
     INDEX_FILE,
     TRAINER_SOURCE,
     ResultSet,

@@ -20,10 +20,10 @@ from collections.abc import Callable, Iterable, Iterator
 
 from threadpoolctl import threadpool_limits
 
-from harness.curves import Checkpoint, LearningCurve
-from harness.pins import installed_pins
-from harness.spec import RunSpec
-from harness.store import TRAINER_SOURCE
+from harness.core.curves import Checkpoint, LearningCurve
+from harness.manifest.pins import installed_pins
+from harness.core.spec import RunSpec
+from harness.store.results import TRAINER_SOURCE
 from harness.trainers.registry import resolve_trainer, source_fingerprint
 
 __all__ = ["installed_versions", "lockstep_size", "run_task", "run_versions"]
@@ -33,7 +33,7 @@ Emit = Callable[[int, str, int, float], None]
 
 @functools.cache
 def installed_versions() -> dict[str, str]:
-    """The installed versions that shape a run's numbers (``harness.pins``), read once per process."""
+    """The installed versions that shape a run's numbers (``harness.manifest.pins``), read once per process."""
     return installed_pins(config_hash="").versions
 
 
@@ -65,7 +65,7 @@ def _stream(specs: list[RunSpec], search_path: str | None) -> Iterable[tuple[Che
 
 def _check(cp: object, spec: RunSpec, expected: int | None) -> str | None:
     if not isinstance(cp, Checkpoint):
-        return f"trainer yielded {type(cp).__name__} {cp!r}, expected a harness.curves.Checkpoint"
+        return f"trainer yielded {type(cp).__name__} {cp!r}, expected a harness.core.curves.Checkpoint"
     if expected is None:
         return f"trainer yielded a checkpoint at step {cp.step} after the last planned step {spec.budget}"
     if cp.step != expected:

@@ -46,10 +46,10 @@ from collections.abc import Sequence
 import numpy as np
 
 from harness import stats
-from harness.curveset import CurveSet
-from harness.errors import BaselineError
-from harness.metrics import METRICS
-from harness.policy import GatePolicy, PublishedReference
+from harness.gate.curveset import CurveSet
+from harness.core.errors import BaselineError
+from harness.gate.metrics import METRICS
+from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.stats import ConfidenceInterval
 
 __all__ = ["VERDICTS", "Divergence", "MetricCheck", "StatisticalComparison", "compare_sets"]

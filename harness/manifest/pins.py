@@ -25,8 +25,8 @@ import tomlkit
 import tomlkit.exceptions
 
 import harness
-from harness._atomic import atomic_write_text
-from harness.errors import ManifestError
+from harness.core.atomic import atomic_write_text
+from harness.core.errors import ManifestError
 
 __all__ = ["DriftRow", "Pins", "blas_in_use", "drift", "installed_pins", "write_pins"]
 

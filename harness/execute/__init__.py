@@ -1,18 +1,18 @@
-"""Executors: where the runner's tasks train.
+"""Execute: the runner and the executors where its tasks train.
 
-``"local"`` (:class:`~harness.executors.local.LocalExecutor`, worker processes on
+``"local"`` (:class:`~harness.execute.local.LocalExecutor`, worker processes on
 this machine) is the default; ``"dask"``
-(:class:`~harness.executors.dask_cluster.DaskExecutor`) runs the same tasks on a
+(:class:`~harness.execute.dask_cluster.DaskExecutor`) runs the same tasks on a
 dask distributed cluster and needs the optional ``dask`` extra. Both call
-:func:`harness.executors.work.run_task`, so they produce the same bytes.
+:func:`harness.execute.work.run_task`, so they produce the same bytes.
 """
 
 from __future__ import annotations
 
 from multiprocessing.context import BaseContext
 
-from harness.errors import did_you_mean
-from harness.executors.base import EVENT_KINDS, Executor, RunEvent, Task, WorkerResult
+from harness.core.errors import did_you_mean
+from harness.execute.base import EVENT_KINDS, Executor, RunEvent, Task, WorkerResult
 
 __all__ = ["EVENT_KINDS", "EXECUTORS", "Executor", "RunEvent", "Task", "WorkerResult", "make_executor"]
 
@@ -34,11 +34,11 @@ def make_executor(
     if name == "local":
         if scheduler is not None:
             raise ValueError("`scheduler` is only for executor='dask'; drop it or pass executor='dask'")
-        from harness.executors.local import LocalExecutor
+        from harness.execute.local import LocalExecutor
 
         return LocalExecutor(workers, context=context)
     if name == "dask":
-        from harness.executors.dask_cluster import DaskExecutor
+        from harness.execute.dask_cluster import DaskExecutor
 
         return DaskExecutor(scheduler, workers=workers)
     raise ValueError(f"`executor` must be one of {EXECUTORS}, got {name!r}.{did_you_mean(str(name), EXECUTORS)}")

@@ -15,7 +15,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from harness.curves import LearningCurve
+from harness.core.curves import LearningCurve
 
 __all__ = [
     "METRICS",
@@ -31,7 +31,7 @@ __all__ = [
 def _curve_iv(curve: object) -> np.ndarray:
     """The curve's mean return per checkpoint, after checking it is usable."""
     if not isinstance(curve, LearningCurve):
-        raise TypeError(f"`curve` must be a harness.curves.LearningCurve, got {type(curve).__name__}")
+        raise TypeError(f"`curve` must be a harness.core.curves.LearningCurve, got {type(curve).__name__}")
     if not curve.checkpoints:
         raise ValueError("`curve` has no checkpoints; the run produced no evaluations")
     for c in curve.checkpoints:
@@ -58,7 +58,7 @@ def final_return(curve: LearningCurve, *, fraction: float = 0.1) -> float:
 
     Examples
     --------
-    >>> from harness.curves import Checkpoint
+    >>> from harness.core.curves import Checkpoint
     >>> c = LearningCurve(tuple(Checkpoint(s, (float(r),)) for s, r in
     ...                         [(0, 0), (10, 10), (20, 30), (30, 50)]))
     >>> final_return(c, fraction=0.5)
@@ -82,7 +82,7 @@ def area_under_curve(curve: LearningCurve) -> float:
 
     Examples
     --------
-    >>> from harness.curves import Checkpoint
+    >>> from harness.core.curves import Checkpoint
     >>> c = LearningCurve((Checkpoint(0, (0.0,)), Checkpoint(100, (100.0,))))
     >>> area_under_curve(c)
     50.0
@@ -124,7 +124,7 @@ def steps_to_threshold(curve: LearningCurve, threshold: float) -> ThresholdResul
 
     Examples
     --------
-    >>> from harness.curves import Checkpoint
+    >>> from harness.core.curves import Checkpoint
     >>> c = LearningCurve(tuple(Checkpoint(s, (float(r),)) for s, r in
     ...                         [(0, 0), (10, 60), (20, 40)]))
     >>> steps_to_threshold(c, 50.0)

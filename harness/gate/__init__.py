@@ -1,0 +1,1 @@
+"""Gate: per-seed metrics, the statistical checks, the verdict and A/A calibration of the gate."""
