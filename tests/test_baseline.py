@@ -26,7 +26,7 @@ VERSIONS = {"python": "3.11.9", "numpy": "2.1.0"}
 
 @dataclasses.dataclass(frozen=True)
 class _Manifest:
-    """The parts of ``harness.manifest.Manifest`` a baseline reads."""
+    """The parts of ``harness.manifest.loader.Manifest`` a baseline reads."""
 
     name: str
     seeds: tuple

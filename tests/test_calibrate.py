@@ -166,7 +166,7 @@ def test_false_alarm_rate_is_near_alpha_on_exchangeable_seeds():
 
 
 def test_strict_gate_fails_on_inconclusive_splits_not_only_on_worse_ones():
-    # Under `strict` an inconclusive check fails the gate (DEVELOPERS.md, Gate): with 3 seeds per
+    # Under `strict` an inconclusive check fails the gate (docs/verdicts.md, Gate): with 3 seeds per
     # group and a margin of a tenth of the noise's sd almost every A/A split is inconclusive, so the
     # gate's failure rate is far above alpha while "worse" stays rare.
     policy = GatePolicy(margin=0.1, strict=True)

@@ -39,7 +39,7 @@ def add_run_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Any, Path]:
-    """The manifest's :class:`~harness.store.ResultSet` and its folder: read (``--no-run``) or run.
+    """The manifest's :class:`~harness.store.results.ResultSet` and its folder: read (``--no-run``) or run.
 
     Running reuses cached and resumed runs unless ``--fresh``.
 

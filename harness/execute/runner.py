@@ -405,7 +405,7 @@ def run_specs(
 
 
 def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **options) -> RunOutcome:
-    """Train every seed of ``manifest`` (a ``harness.manifest.Manifest``); see :func:`run_specs`.
+    """Train every seed of ``manifest`` (a ``harness.manifest.loader.Manifest``); see :func:`run_specs`.
 
     ``results_dir`` defaults to ``results/<manifest name>/``; a user trainer's module is also
     looked for in the manifest's folder, as when the manifest was loaded.

@@ -400,7 +400,7 @@ def plan_calibration(
     Parameters
     ----------
     manifest
-        A ``harness.manifest.Manifest``.
+        A ``harness.manifest.loader.Manifest``.
     seeds
         Calibration seeds (default :data:`SEED_FACTOR` times the manifest's; at least twice).
     splits, split_seed, targets

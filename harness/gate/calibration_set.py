@@ -65,7 +65,7 @@ def calibration_manifest(manifest: Any, *, seeds: int | None = None) -> Any:
     Parameters
     ----------
     manifest
-        A ``harness.manifest.Manifest``.
+        A ``harness.manifest.loader.Manifest``.
     seeds
         Calibration seeds; default :data:`SEED_FACTOR` times the manifest's. At least twice the
         manifest's, so that two disjoint groups of its seed count fit.

@@ -70,7 +70,7 @@ class CurveSet:
     @classmethod
     def from_results(cls, results: Any, *, label: str, config: Mapping[str, Any] | None = None,
                      expected: int | None = None) -> CurveSet:
-        """From a ``harness.store.ResultSet``; every seed must have completed.
+        """From a ``harness.store.results.ResultSet``; every seed must have completed.
 
         Parameters
         ----------

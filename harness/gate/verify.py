@@ -309,9 +309,9 @@ def verify_manifest(
     Parameters
     ----------
     manifest
-        The ``harness.manifest.Manifest``.
+        The ``harness.manifest.loader.Manifest``.
     results
-        Its ``harness.store.ResultSet`` (the rerun).
+        Its ``harness.store.results.ResultSet`` (the rerun).
     baseline
         The recorded baseline, or ``None`` to use the manifest's ``[[reference]]`` tables only.
     policy

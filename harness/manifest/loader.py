@@ -1,6 +1,6 @@
 """Manifests: TOML in, a validated, fully resolved :class:`Manifest` out.
 
-The format is documented in DEVELOPERS.md ("The manifest format"). Each table
+The format is documented in docs/manifest.md. Each table
 is resolved through :mod:`harness.core.config` against a schema (the private
 ``_...Table`` dataclasses here, the trainer's settings dataclass, and
 :class:`harness.manifest.policy.GatePolicy` / :class:`harness.manifest.policy.PublishedReference`),

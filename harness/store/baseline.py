@@ -134,9 +134,9 @@ def baseline_from_results(
     Parameters
     ----------
     manifest
-        A ``harness.manifest.Manifest``.
+        A ``harness.manifest.loader.Manifest``.
     results
-        A ``harness.store.ResultSet`` of that manifest.
+        A ``harness.store.results.ResultSet`` of that manifest.
     recorded
         ISO date to store; the current UTC time by default.
     recording
