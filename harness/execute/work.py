@@ -24,7 +24,8 @@ from harness.core.curves import Checkpoint, LearningCurve
 from harness.manifest.pins import installed_pins
 from harness.core.spec import RunSpec
 from harness.store.results import TRAINER_SOURCE
-from harness.trainers.registry import resolve_trainer, source_fingerprint
+from harness.trainers.fingerprint import source_fingerprint
+from harness.trainers.registry import resolve_trainer
 
 __all__ = ["installed_versions", "lockstep_size", "run_task", "run_versions"]
 
@@ -39,7 +40,7 @@ def installed_versions() -> dict[str, str]:
 
 def run_versions(spec: RunSpec, *, search_path: str | None = None) -> dict[str, str]:
     """What a stored run of ``spec`` must have been made with to be reused: the installed
-    versions, and the fingerprint of the trainer's source (``registry.source_fingerprint``)."""
+    versions, and the fingerprint of the trainer's source (``harness.trainers.fingerprint``)."""
     trainer = resolve_trainer(spec.trainer, search_path=search_path)
     return {**installed_versions(), TRAINER_SOURCE: source_fingerprint(trainer.train)}
 

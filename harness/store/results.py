@@ -56,7 +56,7 @@ __all__ = [
 ]
 
 #: Key in ``RunRecord.versions`` of the trainer's source fingerprint
-#: (``harness.trainers.registry.source_fingerprint``): a run of other code is never reused.
+#: (``harness.trainers.fingerprint.source_fingerprint``): a run of other code is never reused.
 TRAINER_SOURCE = "trainer_source"
 
 RECORD_SCHEMA = "rlharness.run/1"

@@ -19,7 +19,6 @@ for the built-ins::
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import importlib
 import re
 import sys
@@ -38,7 +37,6 @@ __all__ = [
     "TrainerSpec",
     "load_entry_point",
     "resolve_trainer",
-    "source_fingerprint",
 ]
 
 #: ``package.module:attribute`` (dotted module, one attribute name).
@@ -109,30 +107,6 @@ class Trainer:
                 raise ConfigError(f"must be a table, got {table!r}", path=path, key=key)
             return config.check_json_value(table, path=path, key=key)
         return config.to_json(config.resolve(self.settings_type, table, path=path, key=key))
-
-
-def source_fingerprint(function: Callable[..., Any]) -> str:
-    """``"sha256:<hex>"`` of the Python source a trainer function is part of.
-
-    The source is every ``.py`` file of the function's top-level package (or its module's
-    single file), hashed with their relative paths in sorted order. A stored run records
-    it, so that a run trained by other code, say before a refactor, is never taken from
-    the cache or resumed as if it were current. It is deliberately coarse: any edit in the
-    package counts, because a helper module can change a trainer's numbers as surely as
-    the trainer's own file.
-    """
-    top = sys.modules[function.__module__.split(".")[0]]
-    package_dirs = getattr(top, "__path__", None)
-    if package_dirs:
-        roots = [Path(d) for d in package_dirs]
-        files = sorted((f.relative_to(root).as_posix(), f) for root in roots for f in root.rglob("*.py"))
-    else:
-        file = Path(top.__file__)
-        files = [(file.name, file)]
-    digest = hashlib.sha256()
-    for name, file in files:
-        digest.update(name.encode() + b"\0" + file.read_bytes() + b"\0")
-    return "sha256:" + digest.hexdigest()
 
 
 def _import(module_name: str, search_path: Path | None) -> types.ModuleType:
