@@ -17,6 +17,13 @@ from harness.stats.aggregate import (
     iqm,
     probability_of_improvement,
 )
+from harness.stats.boundaries import (
+    BOUNDARY_KINDS,
+    SequentialBoundaries,
+    exit_probabilities,
+    sequential_boundaries,
+    spending_function,
+)
 from harness.stats.bootstrap import (
     BOOTSTRAP_METHODS,
     BootstrapResult,
@@ -42,11 +49,22 @@ from harness.stats.rank import (
     mann_whitney_censored,
     permutation_test_means,
 )
+from harness.stats.sequential import (
+    DECISIONS,
+    SequentialLook,
+    SequentialPlan,
+    SequentialResult,
+    sequential_look,
+    sequential_plan,
+    sequential_test,
+)
 from harness.stats.welch import WelchResult, welch_test, welch_test_from_stats
 
 __all__ = [
     "ALTERNATIVES",
     "BOOTSTRAP_METHODS",
+    "BOUNDARY_KINDS",
+    "DECISIONS",
     "AdjustedPValues",
     "BinomialRate",
     "Alternative",
@@ -57,6 +75,10 @@ __all__ = [
     "MannWhitneyResult",
     "MaxStatisticResult",
     "PermutationResult",
+    "SequentialBoundaries",
+    "SequentialLook",
+    "SequentialPlan",
+    "SequentialResult",
     "WelchResult",
     "benjamini_hochberg",
     "bootstrap_ci",
@@ -66,6 +88,7 @@ __all__ = [
     "bootstrap_probability_of_improvement",
     "equivalence_test",
     "equivalence_test_from_stats",
+    "exit_probabilities",
     "holm",
     "iqm",
     "mann_whitney",
@@ -78,6 +101,11 @@ __all__ = [
     "ratio_margin",
     "relative_margin",
     "seeds_needed",
+    "sequential_boundaries",
+    "sequential_look",
+    "sequential_plan",
+    "sequential_test",
+    "spending_function",
     "welch_test",
     "welch_test_from_stats",
 ]

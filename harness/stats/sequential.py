@@ -1,0 +1,561 @@
+"""A group-sequential comparison of a candidate with a baseline: train seeds in stages, stop early.
+
+Two one-sided questions are asked at every look, each with its own alpha spent
+over the looks:
+
+* **worse** — is the candidate's mean lower (or higher, for a metric where lower
+  is better) than the baseline's by more than ``shift``? ``H0: drop <= shift``
+  is tested with Welch's one-sided t statistic; its overall false-alarm rate is
+  ``alpha``.
+* **equivalent** — does the difference lie within ``±margin``? Two one-sided
+  tests (Schuirmann 1987), each against its own one-sided boundary at level
+  ``alpha_equivalence``; by the intersection-union principle the probability
+  of declaring equivalence when ``|difference| >= margin`` is at most
+  ``alpha_equivalence``.
+
+The boundaries are computed on the normal scale (:mod:`harness.stats.boundaries`)
+and applied to Welch's t by the *significance level approach*: each look's Z
+boundary ``c_k`` is turned into its nominal one-sided level ``1 - Phi(c_k)``,
+and the look rejects when the Welch p-value on the look's Welch–Satterthwaite df
+is below it (Pocock 1977, §5; Jennison & Turnbull 2000, ch. 3, "group
+sequential t-tests"). Equivalently, the t critical value of the look is the
+``1 - nominal`` quantile of Student's t on that df. With 5–20 seeds per side
+the Z boundaries used as-is on t would inflate the false-alarm rate; the
+nominal-level rule holds it near ``alpha`` (see ``benchmarks/bench_sequential.py``
+and ``docs/statistics.md``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Literal
+
+import numpy as np
+from scipy import special as _sp
+
+from harness.stats._result import ConfidenceInterval, fmt, fmt_p
+from harness.stats._validate import as_sample, check_finite_number, check_positive_int, check_probability
+from harness.stats.boundaries import BOUNDARY_KINDS, SequentialBoundaries, sequential_boundaries
+from harness.stats.welch import welch_moments
+
+__all__ = [
+    "DECISIONS",
+    "SequentialLook",
+    "SequentialPlan",
+    "SequentialResult",
+    "sequential_look",
+    "sequential_plan",
+    "sequential_test",
+]
+
+Decision = Literal["worse", "equivalent", "continue", "final"]
+
+#: The outcomes of a look, in the order a look checks them.
+DECISIONS: tuple[str, ...] = ("worse", "equivalent", "continue", "final")
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class SequentialPlan:
+    """When to look and what each look must cross.
+
+    Attributes
+    ----------
+    stages
+        Candidate seeds at each look, strictly increasing (e.g. ``(5, 10, 15, 20)``).
+    baseline_stages
+        Baseline seeds at each look (non-decreasing; the same as ``stages``
+        unless given, or constant when the baseline is recorded in full).
+    worse
+        One-sided boundaries of the "worse" test at level ``alpha``.
+    equivalence
+        One-sided boundaries used by each of the two equivalence tests at level
+        ``alpha_equivalence``.
+    method
+        The designs' names.
+    """
+
+    stages: tuple[int, ...]
+    baseline_stages: tuple[int, ...]
+    worse: SequentialBoundaries
+    equivalence: SequentialBoundaries
+    method: str
+
+    @property
+    def looks(self) -> int:
+        return len(self.stages)
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class SequentialLook:
+    """One look of a group-sequential comparison.
+
+    Attributes
+    ----------
+    look
+        1-based index of the look; ``final`` is True at the last planned look.
+    n_baseline, n_candidate
+        Seeds so far in each group.
+    estimate
+        ``mean(candidate) - mean(baseline)``.
+    interval
+        The repeated confidence interval of the difference at this look,
+        ``estimate ± critical_equivalence * standard_error``: equivalence is
+        declared exactly when it lies inside ``(-margin, margin)``. Its coverage
+        holds simultaneously over all looks (Jennison & Turnbull 2000, ch. 9).
+    standard_error, df
+        Welch's standard error and Welch–Satterthwaite degrees of freedom.
+    statistic
+        ``(drop - shift) / standard_error``, where ``drop`` is how much worse the
+        candidate is (``-estimate`` when higher is better); large means worse.
+    pvalue_worse, nominal_worse, critical_worse
+        One-sided Welch p-value of "worse", the look's nominal level (the
+        boundary as a p-value) and the same boundary as a t critical value.
+    pvalue_equivalence, nominal_equivalence, critical_equivalence
+        TOST p-value (the larger of the two one-sided p-values) and the
+        equivalence boundary as a nominal level and as a t critical value.
+    shift, margin
+        The null drop of the "worse" test and the equivalence half-width.
+    decision
+        ``"worse"``, ``"equivalent"``, ``"continue"`` (more seeds are planned) or
+        ``"final"`` (the last look crossed neither boundary).
+    reading
+        One sentence.
+    """
+
+    look: int
+    final: bool
+    n_baseline: int
+    n_candidate: int
+    estimate: float
+    interval: ConfidenceInterval
+    standard_error: float
+    df: float
+    statistic: float
+    pvalue_worse: float
+    nominal_worse: float
+    critical_worse: float
+    pvalue_equivalence: float
+    nominal_equivalence: float
+    critical_equivalence: float
+    shift: float
+    margin: float
+    decision: str
+    reading: str
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class SequentialResult:
+    """The looks taken so far and why the comparison stopped (or must go on).
+
+    Attributes
+    ----------
+    looks
+        The looks taken, in order; the last one holds the decision.
+    decision
+        The last look's decision; ``"continue"`` means the data ran out before
+        the next planned look (train up to ``seeds_next`` seeds and call again).
+    stopped_because
+        One sentence: which boundary was crossed, or that the last look was
+        reached, or how many seeds the next look needs.
+    seeds_next
+        ``(baseline, candidate)`` seeds the next look needs when ``decision`` is
+        ``"continue"``, else None.
+    plan
+        The plan that was followed.
+    method, reading
+        The method's name and a one-sentence reading.
+    """
+
+    looks: tuple[SequentialLook, ...]
+    decision: str
+    stopped_because: str
+    seeds_next: tuple[int, int] | None
+    plan: SequentialPlan
+    method: str
+    reading: str
+
+    @property
+    def seeds_used(self) -> tuple[int, int]:
+        """``(baseline, candidate)`` seeds used by the last look taken (0, 0 before the first)."""
+        if not self.looks:
+            return (0, 0)
+        return (self.looks[-1].n_baseline, self.looks[-1].n_candidate)
+
+
+# ---------------------------------------------------------------------------------------------
+# Plan
+
+
+def _stages_iv(stages: object, name: str, *, strict: bool) -> tuple[int, ...]:
+    if isinstance(stages, (str, bytes)) or not hasattr(stages, "__iter__"):
+        raise TypeError(f"`{name}` must be a sequence of seed counts, got {stages!r}")
+    values = tuple(check_positive_int(v, f"{name}[{i}]", minimum=2) for i, v in enumerate(stages))
+    if not values:
+        raise ValueError(f"`{name}` must name at least one look, got {stages!r}")
+    for i in range(1, len(values)):
+        if values[i] < values[i - 1] or (strict and values[i] == values[i - 1]):
+            kind = "strictly increasing" if strict else "non-decreasing"
+            raise ValueError(
+                f"`{name}` must be {kind} seed counts (at least 2 each), got {stages!r}; "
+                f"look {i + 1} has {values[i]} after {values[i - 1]}"
+            )
+    return values
+
+
+def _kind_iv(kind: object, name: str) -> str:
+    if kind not in BOUNDARY_KINDS:
+        listed = ", ".join(repr(k) for k in BOUNDARY_KINDS)
+        raise ValueError(f"`{name}` must be one of {listed}, got {kind!r}")
+    return str(kind)
+
+
+def _level_iv(alpha: object, name: str) -> float:
+    a = check_probability(alpha, name)
+    if a >= 0.5:
+        raise ValueError(f"`{name}` is a one-sided level and must be below 0.5, got {alpha!r}")
+    return a
+
+
+def _sequential_plan_iv(stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind):
+    cand = _stages_iv(stages, "stages", strict=True)
+    base = cand if baseline_stages is None else _stages_iv(baseline_stages, "baseline_stages", strict=False)
+    if len(base) != len(cand):
+        raise ValueError(
+            f"`baseline_stages` must have one entry per look ({len(cand)}), got {len(base)}: {baseline_stages!r}"
+        )
+    alpha = _level_iv(alpha, "alpha")
+    alpha_eq = alpha if alpha_equivalence is None else _level_iv(alpha_equivalence, "alpha_equivalence")
+    kind = _kind_iv(kind, "kind")
+    eq_kind = kind if equivalence_kind is None else _kind_iv(equivalence_kind, "equivalence_kind")
+    return cand, base, alpha, alpha_eq, kind, eq_kind
+
+
+def sequential_plan(
+    stages: object,
+    *,
+    baseline_stages: object | None = None,
+    alpha: float = 0.05,
+    alpha_equivalence: float | None = None,
+    kind: str = "obrien-fleming-spending",
+    equivalence_kind: str | None = None,
+) -> SequentialPlan:
+    """Plan a group-sequential comparison: the looks and the boundaries of both questions.
+
+    Parameters
+    ----------
+    stages
+        Candidate seeds at each look, strictly increasing, at least 2 each.
+    baseline_stages
+        Baseline seeds at each look, non-decreasing; defaults to ``stages``.
+        Pass the recorded count at every look (e.g. ``(20, 20, 20, 20)``) when
+        the baseline already holds all its seeds.
+    alpha
+        Overall one-sided false-alarm rate of "worse".
+    alpha_equivalence
+        Overall level of each one-sided half of the equivalence test (the rate of
+        declaring equivalence when ``|difference| >= margin``); defaults to ``alpha``.
+    kind, equivalence_kind
+        The design of each question, one of :data:`~harness.stats.boundaries.BOUNDARY_KINDS`
+        (``equivalence_kind`` defaults to ``kind``).
+
+    Returns
+    -------
+    SequentialPlan
+
+    Notes
+    -----
+    The information at a look is taken as ``1 / (1/n_baseline + 1/n_candidate)``
+    (Welch's information ``1 / se^2`` with the unknown variances equal), so that
+    with equal groups the information fraction is ``n_k / n_K``. If a look ends
+    up with other seed counts (a failed run), plan again with the counts
+    observed: for a spending design that is the Lan & DeMets (1983) way of
+    handling unplanned information.
+
+    References
+    ----------
+    .. [1] Lan, K. K. G. & DeMets, D. L. (1983). Biometrika 70:659–663.
+    .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
+       Applications to Clinical Trials. Chapman & Hall/CRC, ch. 4 (one-sided
+       tests) and ch. 6 (equivalence tests).
+
+    Examples
+    --------
+    >>> plan = sequential_plan((5, 10, 15, 20), alpha=0.05)
+    >>> [round(c, 3) for c in plan.worse.critical]
+    [3.75, 2.54, 2.016, 1.72]
+    """
+    cand, base, alpha, alpha_eq, kind, eq_kind = _sequential_plan_iv(
+        stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind
+    )
+    information = [1.0 / (1.0 / b + 1.0 / c) for b, c in zip(base, cand)]
+    worse = sequential_boundaries(information, alpha=alpha, kind=kind, sides=1)
+    equivalence = worse if (eq_kind, alpha_eq) == (kind, alpha) else sequential_boundaries(
+        information, alpha=alpha_eq, kind=eq_kind, sides=1
+    )
+    method = f"worse: {worse.method}; equivalence: two one-sided tests (Schuirmann 1987), {equivalence.method}"
+    return SequentialPlan(stages=cand, baseline_stages=base, worse=worse, equivalence=equivalence, method=method)
+
+
+# ---------------------------------------------------------------------------------------------
+# Looks
+
+
+def _t_sf(statistic: float, df: float) -> float:
+    return float(_sp.stdtr(df, -statistic))
+
+
+def _t_isf(p: float, df: float) -> float:
+    return float(_sp.stdtrit(df, 1.0 - p))
+
+
+def _ratio(num: float, se: float) -> float:
+    if se > 0.0:
+        return num / se
+    return 0.0 if num == 0.0 else math.copysign(math.inf, num)
+
+
+def _look(base: np.ndarray, cand: np.ndarray, plan: SequentialPlan, look: int,
+          shift: float, margin: float, higher_is_better: bool) -> SequentialLook:  # fmt: skip
+    k = look - 1
+    estimate, se, df = welch_moments(
+        float(np.mean(cand)), float(np.var(cand, ddof=1)), cand.size,
+        float(np.mean(base)), float(np.var(base, ddof=1)), base.size,
+    )  # fmt: skip
+    drop = -estimate if higher_is_better else estimate
+    statistic = _ratio(drop - shift, se)
+    p_worse = _t_sf(statistic, df)
+    p_low = _t_sf(_ratio(estimate + margin, se), df)  # H0: estimate <= -margin
+    p_high = _t_sf(_ratio(margin - estimate, se), df)  # H0: estimate >= margin
+    p_equiv = max(p_low, p_high)
+    nom_w, nom_e = plan.worse.nominal[k], plan.equivalence.nominal[k]
+    crit_w, crit_e = _t_isf(nom_w, df), _t_isf(nom_e, df)
+    half = crit_e * se
+    interval = ConfidenceInterval(estimate - half, estimate + half)
+    final = look == plan.looks
+    if p_worse < nom_w:
+        decision = "worse"
+    elif p_equiv < nom_e:
+        decision = "equivalent"
+    else:
+        decision = "final" if final else "continue"
+    reading = _look_reading(look, base.size, cand.size, estimate, interval, 1.0 - 2.0 * nom_e, shift, margin,
+                            p_worse, nom_w, crit_w, p_equiv, nom_e, decision, plan)  # fmt: skip
+    return SequentialLook(
+        look=look, final=final, n_baseline=int(base.size), n_candidate=int(cand.size),
+        estimate=estimate, interval=interval, standard_error=se, df=df, statistic=statistic,
+        pvalue_worse=p_worse, nominal_worse=nom_w, critical_worse=crit_w,
+        pvalue_equivalence=p_equiv, nominal_equivalence=nom_e, critical_equivalence=crit_e,
+        shift=shift, margin=margin, decision=decision, reading=reading,
+    )  # fmt: skip
+
+
+def _look_reading(look, nb, nc, estimate, interval, level, shift, margin, p_w, nom_w, crit_w, p_e, nom_e,
+                  decision, plan) -> str:  # fmt: skip
+    if decision == "continue":
+        outcome = f"continue to {plan.stages[look]} candidate seeds"
+    else:
+        outcome = {
+            "worse": "the candidate is worse: stop",
+            "equivalent": "equivalent within the margin: stop",
+            "final": "neither boundary crossed at the last look",
+        }[decision]
+    return (
+        f"Look {look} of {plan.looks} ({nc} candidate vs {nb} baseline seeds): "
+        f"candidate - baseline = {fmt(estimate)}, repeated {fmt(100 * level)}% CI {interval}; "
+        f"worse beyond {fmt(shift)}: Welch {fmt_p(p_w)} vs boundary {fmt(nom_w)} (t >= {fmt(crit_w)}); "
+        f"within ±{fmt(margin)}: TOST {fmt_p(p_e)} vs {fmt(nom_e)}: {outcome}."
+    )
+
+
+def _margins_iv(shift: object, margin: object) -> tuple[float, float]:
+    s = check_finite_number(shift, "shift")
+    if s < 0:
+        raise ValueError(f"`shift` is the drop tolerated before 'worse' and must be >= 0, got {shift!r}")
+    m = check_finite_number(margin, "margin")
+    if m <= 0:
+        raise ValueError(f"`margin` must be positive (the half-width of the equivalence region), got {margin!r}")
+    return s, m
+
+
+def _plan_iv(plan: object) -> SequentialPlan:
+    if not isinstance(plan, SequentialPlan):
+        raise TypeError(f"`plan` must be a SequentialPlan from sequential_plan(), got {type(plan).__name__}")
+    return plan
+
+
+def _sequential_look_iv(baseline, candidate, plan, look, shift, margin):
+    plan = _plan_iv(plan)
+    look = check_positive_int(look, "look")
+    if look > plan.looks:
+        raise ValueError(f"`look` must be between 1 and {plan.looks} for this plan, got {look}")
+    base, cand = as_sample(baseline, "baseline"), as_sample(candidate, "candidate")
+    for name, arr, want in (("baseline", base, plan.baseline_stages), ("candidate", cand, plan.stages)):
+        if arr.size != want[look - 1]:
+            raise ValueError(
+                f"`{name}` must hold the {want[look - 1]} seeds planned for look {look}, got {arr.size}; "
+                "pass the first seeds in seed order, or plan again with the counts you have"
+            )
+    return base, cand, plan, look, *_margins_iv(shift, margin)
+
+
+def sequential_look(
+    baseline: object,
+    candidate: object,
+    *,
+    plan: SequentialPlan,
+    look: int,
+    margin: float,
+    shift: float = 0.0,
+    higher_is_better: bool = True,
+) -> SequentialLook:
+    """Take one look of a group-sequential comparison.
+
+    Parameters
+    ----------
+    baseline, candidate
+        Per-seed values, exactly as many as ``plan`` gives for this look.
+    plan
+        From :func:`sequential_plan`.
+    look
+        1-based look number.
+    margin
+        Half-width of the equivalence region, in the metric's units.
+    shift
+        Drop tolerated before "worse" (``H0: drop <= shift``); 0 tests any drop.
+    higher_is_better
+        Direction of the metric: when False, "worse" means a larger candidate mean.
+
+    Returns
+    -------
+    SequentialLook
+
+    Notes
+    -----
+    "worse" is checked first, then equivalence. Each is decided by the
+    significance level approach: the Welch p-value on this look's
+    Welch–Satterthwaite df against the nominal level of the look's normal-scale
+    boundary (Pocock 1977; Jennison & Turnbull 2000, ch. 3). Equivalence needs
+    both one-sided tests to pass, i.e. the repeated confidence interval inside
+    ``(-margin, margin)`` (Schuirmann 1987; Jennison & Turnbull 2000, ch. 6 and 9).
+    Constant groups give the degenerate result of :func:`~harness.stats.welch_test`
+    (a zero standard error: the difference is treated as exact).
+
+    References
+    ----------
+    .. [1] Pocock, S. J. (1977). Biometrika 64:191–199.
+    .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
+       Applications to Clinical Trials. Chapman & Hall/CRC.
+    .. [3] Schuirmann, D. J. (1987). J. Pharmacokinetics and Biopharmaceutics 15:657–680.
+    .. [4] Welch, B. L. (1947). Biometrika 34:28–35.
+
+    Examples
+    --------
+    >>> plan = sequential_plan((5, 10), alpha=0.05)
+    >>> r = sequential_look([10.0, 11, 9, 10, 10.5], [1.0, 2, 1.5, 0.5, 1], plan=plan, look=1, margin=2.0)
+    >>> r.decision
+    'worse'
+    """
+    base, cand, plan, look, shift, margin = _sequential_look_iv(baseline, candidate, plan, look, shift, margin)
+    return _look(base, cand, plan, look, shift, margin, bool(higher_is_better))
+
+
+def sequential_test(
+    baseline: object,
+    candidate: object,
+    *,
+    plan: SequentialPlan,
+    margin: float,
+    shift: float = 0.0,
+    higher_is_better: bool = True,
+) -> SequentialResult:
+    """Walk the planned looks over the seeds available and stop at the first decision.
+
+    Parameters
+    ----------
+    baseline, candidate
+        Per-seed values in seed order; look ``k`` uses the first
+        ``plan.baseline_stages[k]`` and ``plan.stages[k]`` of them. Extra values
+        beyond the look that decides are ignored. Looks whose seeds are not all
+        there yet are not taken: the result then says ``"continue"`` and how
+        many seeds the next look needs, so a caller trains them and calls again
+        (earlier looks are recomputed identically).
+    plan, margin, shift, higher_is_better
+        As in :func:`sequential_look`.
+
+    Returns
+    -------
+    SequentialResult
+
+    Notes
+    -----
+    The false-alarm rate of "worse" is at most ``plan.worse.alpha`` because the
+    looks follow a group-sequential design and stopping for equivalence only
+    removes chances to cross; likewise for equivalence. A ``"final"`` decision
+    means neither boundary was crossed at the last look: a caller that then
+    applies a fixed-sample verdict must not turn it into "worse" at the
+    fixed ``alpha`` (that would add to the false alarms already spent).
+
+    References
+    ----------
+    .. [1] Lan, K. K. G. & DeMets, D. L. (1983). Biometrika 70:659–663.
+    .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
+       Applications to Clinical Trials. Chapman & Hall/CRC.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(np.random.SeedSequence(7))
+    >>> base, cand = rng.normal(100, 10, 20), rng.normal(60, 10, 20)
+    >>> r = sequential_test(base, cand, plan=sequential_plan((5, 10, 15, 20)), margin=10.0)
+    >>> r.decision, r.seeds_used
+    ('worse', (5, 5))
+    """
+    plan = _plan_iv(plan)
+    base_all, cand_all = _available_iv(baseline, "baseline"), _available_iv(candidate, "candidate")
+    shift, margin = _margins_iv(shift, margin)
+    looks: list[SequentialLook] = []
+    for k in range(plan.looks):
+        nb, nc = plan.baseline_stages[k], plan.stages[k]
+        if base_all.size < nb or cand_all.size < nc:
+            return _result(looks, plan, (nb, nc), base_all.size, cand_all.size)
+        look = _look(base_all[:nb], cand_all[:nc], plan, k + 1, shift, margin, bool(higher_is_better))
+        looks.append(look)
+        if look.decision != "continue":
+            break
+    return _result(looks, plan, None, base_all.size, cand_all.size)
+
+
+def _available_iv(values: object, name: str) -> np.ndarray:
+    return as_sample(values, name, min_size=0)  # fewer seeds than a look needs means "not yet"
+
+
+def _result(looks, plan, needed, have_b, have_c) -> SequentialResult:
+    method = f"group-sequential Welch comparison ({plan.method}); significance level approach for t"
+    if needed is not None:
+        nb, nc = needed
+        because = (
+            f"look {len(looks) + 1} needs {nc} candidate and {nb} baseline seeds, "
+            f"and {have_c} and {have_b} are available"
+        )
+        decision = "continue"
+    else:
+        last = looks[-1]
+        decision = last.decision
+        because = {
+            "worse": f"the 'worse' boundary was crossed at look {last.look}",
+            "equivalent": f"the equivalence boundaries were crossed at look {last.look}",
+            "final": f"the last look ({last.look}) was reached without crossing a boundary",
+        }[decision]
+    reading = (
+        f"{because.capitalize()} ({len(looks)} of {plan.looks} looks taken)"
+        + (f": {looks[-1].reading}" if looks else ".")
+    )
+    return SequentialResult(
+        looks=tuple(looks),
+        decision=decision,
+        stopped_because=because,
+        seeds_next=needed,
+        plan=plan,
+        method=method,
+        reading=reading,
+    )
