@@ -308,3 +308,12 @@ def test_sequential_boundaries_iv():
         exit_probabilities([2.0], [0.5, 1.0])
     with pytest.raises(ValueError, match=r"`fractions` must lie in \(0, 1\]"):
         exit_probabilities([2.0, 2.0], [1.0, 2.0])
+
+
+@pytest.mark.parametrize("name", ["harness.stats.boundaries", "harness.stats.sequential"])
+def test_docstring_examples(name):
+    import doctest
+    import importlib
+
+    result = doctest.testmod(importlib.import_module(name), optionflags=doctest.ELLIPSIS)
+    assert result.failed == 0 and result.attempted > 0
