@@ -19,6 +19,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats as sps
 
 from harness.stats import (
@@ -31,6 +33,7 @@ from harness.stats import (
 )
 
 EQUAL5 = (1, 2, 3, 4, 5)
+_PLAN_5_10 = sequential_plan((5, 10), alpha=0.05)
 
 
 def _simulate_crossing(critical, fractions, *, sides, drift=0.0, n=200_000, seed=0):
@@ -317,3 +320,23 @@ def test_docstring_examples(name):
 
     result = doctest.testmod(importlib.import_module(name), optionflags=doctest.ELLIPSIS)
     assert result.failed == 0 and result.attempted > 0
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    st.integers(0, 2**32 - 1),
+    st.floats(-1e4, 1e4),
+    st.floats(0.01, 100.0),
+    st.floats(0.0, 2.0),
+)
+def test_decisions_do_not_depend_on_units(seed, offset, scale, drop):
+    # Invariance (common practice for location-scale tests): adding a constant to both groups and
+    # rescaling the values, the margin and the shift leaves every look's decision and p-values as they were.
+    plan = _PLAN_5_10
+    rng = np.random.default_rng(np.random.SeedSequence(seed))
+    base, cand = rng.normal(0, 1, 10), rng.normal(-drop, 1, 10)
+    one = sequential_test(base, cand, plan=plan, margin=1.0, shift=0.25)
+    two = sequential_test(offset + scale * base, offset + scale * cand, plan=plan, margin=scale, shift=0.25 * scale)
+    assert [lk.decision for lk in one.looks] == [lk.decision for lk in two.looks]
+    assert [lk.pvalue_worse for lk in one.looks] == pytest.approx([lk.pvalue_worse for lk in two.looks], abs=1e-6)
+    assert two.estimate == pytest.approx(scale * one.estimate, rel=1e-6, abs=1e-6 * scale)

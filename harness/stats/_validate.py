@@ -22,8 +22,10 @@ __all__ = [
     "as_sample",
     "check_alternative",
     "check_finite_number",
+    "check_one_sided_level",
     "check_positive_int",
     "check_probability",
+    "check_stage_counts",
     "make_rng",
     "warn_few",
 ]
@@ -102,6 +104,31 @@ def check_positive_int(value: object, name: str, *, minimum: int = 1) -> int:
     if value < minimum:
         raise ValueError(f"`{name}` must be an integer >= {minimum}, got {value!r}")
     return int(value)
+
+
+def check_one_sided_level(value: object, name: str) -> float:
+    """Return ``value`` as a one-sided significance level, strictly between 0 and 0.5."""
+    a = check_probability(value, name)
+    if a >= 0.5:
+        raise ValueError(f"`{name}` is a one-sided level and must be below 0.5, got {value!r}")
+    return a
+
+
+def check_stage_counts(stages: object, name: str, *, strict: bool) -> tuple[int, ...]:
+    """Return seed counts per look (at least 2 each), strictly increasing or (``strict=False``) non-decreasing."""
+    if isinstance(stages, (str, bytes)) or not hasattr(stages, "__iter__"):
+        raise TypeError(f"`{name}` must be a sequence of seed counts, got {stages!r}")
+    values = tuple(check_positive_int(v, f"{name}[{i}]", minimum=2) for i, v in enumerate(stages))
+    if not values:
+        raise ValueError(f"`{name}` must name at least one look, got {stages!r}")
+    for i in range(1, len(values)):
+        if values[i] < values[i - 1] or (strict and values[i] == values[i - 1]):
+            kind = "strictly increasing" if strict else "non-decreasing"
+            raise ValueError(
+                f"`{name}` must be {kind} seed counts (at least 2 each), got {stages!r}; "
+                f"look {i + 1} has {values[i]} after {values[i - 1]}"
+            )
+    return values
 
 
 def make_rng(rng: object) -> np.random.Generator:

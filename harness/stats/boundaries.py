@@ -23,11 +23,12 @@ from scipy import optimize as _opt
 from scipy import special as _sp
 
 from harness.stats._result import fmt
-from harness.stats._validate import check_finite_number, check_probability
+from harness.stats._validate import check_finite_number, check_one_sided_level, check_probability
 
 __all__ = [
     "BOUNDARY_KINDS",
     "SequentialBoundaries",
+    "check_kind",
     "exit_probabilities",
     "sequential_boundaries",
     "spending_function",
@@ -301,16 +302,19 @@ def _sides_iv(sides: object) -> int:
     return int(sides)
 
 
-def _sequential_boundaries_iv(information, alpha, kind, sides):
-    t = _fractions_iv(information, "information")
+def check_kind(kind: object, name: str = "kind") -> str:
+    """Return ``kind`` if it is one of :data:`BOUNDARY_KINDS`, else raise ValueError naming ``name``."""
     if kind not in BOUNDARY_KINDS:
         listed = ", ".join(repr(k) for k in BOUNDARY_KINDS)
-        raise ValueError(f"`kind` must be one of {listed}, got {kind!r}")
+        raise ValueError(f"`{name}` must be one of {listed}, got {kind!r}")
+    return str(kind)
+
+
+def _sequential_boundaries_iv(information, alpha, kind, sides):
+    t = _fractions_iv(information, "information")
     sides = _sides_iv(sides)
-    a = check_probability(alpha, "alpha")
-    if sides == 1 and a >= 0.5:
-        raise ValueError(f"`alpha` of a one-sided test must be below 0.5, got {alpha!r}")
-    return t, a, str(kind), sides
+    a = check_one_sided_level(alpha, "alpha") if sides == 1 else check_probability(alpha, "alpha")
+    return t, a, check_kind(kind), sides
 
 
 def _spending_critical(t: np.ndarray, alpha: float, kind: str, sides: int) -> list[float]:

@@ -1,28 +1,18 @@
 """A group-sequential comparison of a candidate with a baseline: train seeds in stages, stop early.
 
-Two one-sided questions are asked at every look, each with its own alpha spent
-over the looks:
+Every look asks two one-sided questions, each with its own alpha spent over the
+looks: **worse** (``H0: drop <= shift``, Welch's one-sided t; false-alarm rate
+``alpha``) and **equivalent** (two one-sided tests against ``±margin``,
+Schuirmann 1987; by the intersection-union principle the rate of declaring
+equivalence when ``|difference| >= margin`` is at most ``alpha_equivalence``).
 
-* **worse** — is the candidate's mean lower (or higher, for a metric where lower
-  is better) than the baseline's by more than ``shift``? ``H0: drop <= shift``
-  is tested with Welch's one-sided t statistic; its overall false-alarm rate is
-  ``alpha``.
-* **equivalent** — does the difference lie within ``±margin``? Two one-sided
-  tests (Schuirmann 1987), each against its own one-sided boundary at level
-  ``alpha_equivalence``; by the intersection-union principle the probability
-  of declaring equivalence when ``|difference| >= margin`` is at most
-  ``alpha_equivalence``.
-
-The boundaries are computed on the normal scale (:mod:`harness.stats.boundaries`)
-and applied to Welch's t by the *significance level approach*: each look's Z
-boundary ``c_k`` is turned into its nominal one-sided level ``1 - Phi(c_k)``,
-and the look rejects when the Welch p-value on the look's Welch–Satterthwaite df
-is below it (Pocock 1977, §5; Jennison & Turnbull 2000, ch. 3, "group
-sequential t-tests"). Equivalently, the t critical value of the look is the
-``1 - nominal`` quantile of Student's t on that df. With 5–20 seeds per side
-the Z boundaries used as-is on t would inflate the false-alarm rate; the
-nominal-level rule holds it near ``alpha`` (see ``benchmarks/bench_sequential.py``
-and ``docs/statistics.md``).
+Boundaries are computed on the normal scale (:mod:`harness.stats.boundaries`) and
+applied to Welch's t by the *significance level approach* (Pocock 1977;
+Jennison & Turnbull 2000, ch. 3, group sequential t-tests): a look rejects when
+its Welch p-value, on the look's Welch–Satterthwaite df, is below the nominal
+level ``1 - Phi(c_k)`` of its Z boundary ``c_k``. With 5–20 seeds per side the
+Z boundaries used as-is on t inflate the false-alarm rate; the nominal levels
+hold it near ``alpha`` (``benchmarks/bench_sequential.py``, ``docs/statistics.md``).
 """
 
 from __future__ import annotations
@@ -35,8 +25,14 @@ import numpy as np
 from scipy import special as _sp
 
 from harness.stats._result import ConfidenceInterval, fmt, fmt_p
-from harness.stats._validate import as_sample, check_finite_number, check_positive_int, check_probability
-from harness.stats.boundaries import BOUNDARY_KINDS, SequentialBoundaries, sequential_boundaries
+from harness.stats._validate import (
+    as_sample,
+    check_finite_number,
+    check_one_sided_level,
+    check_positive_int,
+    check_stage_counts,
+)
+from harness.stats.boundaries import SequentialBoundaries, check_kind, sequential_boundaries
 from harness.stats.welch import welch_moments
 
 __all__ = [
@@ -140,7 +136,7 @@ class SequentialLook:
     critical_equivalence: float
     shift: float
     margin: float
-    decision: str
+    decision: Decision
     reading: str
 
 
@@ -168,12 +164,22 @@ class SequentialResult:
     """
 
     looks: tuple[SequentialLook, ...]
-    decision: str
+    decision: Decision
     stopped_because: str
     seeds_next: tuple[int, int] | None
     plan: SequentialPlan
     method: str
     reading: str
+
+    @property
+    def estimate(self) -> float | None:
+        """The last look's ``mean(candidate) - mean(baseline)`` (None before the first look)."""
+        return self.looks[-1].estimate if self.looks else None
+
+    @property
+    def interval(self) -> ConfidenceInterval | None:
+        """The last look's repeated confidence interval (None before the first look)."""
+        return self.looks[-1].interval if self.looks else None
 
     @property
     def seeds_used(self) -> tuple[int, int]:
@@ -183,51 +189,17 @@ class SequentialResult:
         return (self.looks[-1].n_baseline, self.looks[-1].n_candidate)
 
 
-# ---------------------------------------------------------------------------------------------
-# Plan
-
-
-def _stages_iv(stages: object, name: str, *, strict: bool) -> tuple[int, ...]:
-    if isinstance(stages, (str, bytes)) or not hasattr(stages, "__iter__"):
-        raise TypeError(f"`{name}` must be a sequence of seed counts, got {stages!r}")
-    values = tuple(check_positive_int(v, f"{name}[{i}]", minimum=2) for i, v in enumerate(stages))
-    if not values:
-        raise ValueError(f"`{name}` must name at least one look, got {stages!r}")
-    for i in range(1, len(values)):
-        if values[i] < values[i - 1] or (strict and values[i] == values[i - 1]):
-            kind = "strictly increasing" if strict else "non-decreasing"
-            raise ValueError(
-                f"`{name}` must be {kind} seed counts (at least 2 each), got {stages!r}; "
-                f"look {i + 1} has {values[i]} after {values[i - 1]}"
-            )
-    return values
-
-
-def _kind_iv(kind: object, name: str) -> str:
-    if kind not in BOUNDARY_KINDS:
-        listed = ", ".join(repr(k) for k in BOUNDARY_KINDS)
-        raise ValueError(f"`{name}` must be one of {listed}, got {kind!r}")
-    return str(kind)
-
-
-def _level_iv(alpha: object, name: str) -> float:
-    a = check_probability(alpha, name)
-    if a >= 0.5:
-        raise ValueError(f"`{name}` is a one-sided level and must be below 0.5, got {alpha!r}")
-    return a
-
-
 def _sequential_plan_iv(stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind):
-    cand = _stages_iv(stages, "stages", strict=True)
-    base = cand if baseline_stages is None else _stages_iv(baseline_stages, "baseline_stages", strict=False)
+    cand = check_stage_counts(stages, "stages", strict=True)
+    base = cand if baseline_stages is None else check_stage_counts(baseline_stages, "baseline_stages", strict=False)
     if len(base) != len(cand):
         raise ValueError(
             f"`baseline_stages` must have one entry per look ({len(cand)}), got {len(base)}: {baseline_stages!r}"
         )
-    alpha = _level_iv(alpha, "alpha")
-    alpha_eq = alpha if alpha_equivalence is None else _level_iv(alpha_equivalence, "alpha_equivalence")
-    kind = _kind_iv(kind, "kind")
-    eq_kind = kind if equivalence_kind is None else _kind_iv(equivalence_kind, "equivalence_kind")
+    alpha = check_one_sided_level(alpha, "alpha")
+    alpha_eq = alpha if alpha_equivalence is None else check_one_sided_level(alpha_equivalence, "alpha_equivalence")
+    kind = check_kind(kind, "kind")
+    eq_kind = kind if equivalence_kind is None else check_kind(equivalence_kind, "equivalence_kind")
     return cand, base, alpha, alpha_eq, kind, eq_kind
 
 
@@ -295,10 +267,6 @@ def sequential_plan(
     )
     method = f"worse: {worse.method}; equivalence: two one-sided tests (Schuirmann 1987), {equivalence.method}"
     return SequentialPlan(stages=cand, baseline_stages=base, worse=worse, equivalence=equivalence, method=method)
-
-
-# ---------------------------------------------------------------------------------------------
-# Looks
 
 
 def _t_sf(statistic: float, df: float) -> float:
