@@ -1,7 +1,7 @@
 """A group-sequential comparison of a candidate with a baseline: train seeds in stages, stop early.
 
 Every look asks two one-sided questions, each with its own alpha spent over the
-looks: **worse** (``H0: drop <= shift``, Welch's one-sided t; false-alarm rate
+looks: **worse** (``H0: drop <= shift``, Welch 1947 one-sided t; false-alarm rate
 ``alpha``) and **equivalent** (two one-sided tests against ``±margin``,
 Schuirmann 1987; by the intersection-union principle the rate of declaring
 equivalence when ``|difference| >= margin`` is at most ``alpha_equivalence``).
@@ -307,32 +307,31 @@ def _look(base: np.ndarray, cand: np.ndarray, plan: SequentialPlan, look: int,
         decision = "equivalent"
     else:
         decision = "final" if final else "continue"
-    reading = _look_reading(look, base.size, cand.size, estimate, interval, 1.0 - 2.0 * nom_e, shift, margin,
-                            p_worse, nom_w, crit_w, p_equiv, nom_e, decision, plan)  # fmt: skip
-    return SequentialLook(
+    result = SequentialLook(
         look=look, final=final, n_baseline=int(base.size), n_candidate=int(cand.size),
         estimate=estimate, interval=interval, standard_error=se, df=df, statistic=statistic,
         pvalue_worse=p_worse, nominal_worse=nom_w, critical_worse=crit_w,
         pvalue_equivalence=p_equiv, nominal_equivalence=nom_e, critical_equivalence=crit_e,
-        shift=shift, margin=margin, decision=decision, reading=reading,
+        shift=shift, margin=margin, decision=decision, reading="",
     )  # fmt: skip
+    return dataclasses.replace(result, reading=_look_reading(result, plan))
 
 
-def _look_reading(look, nb, nc, estimate, interval, level, shift, margin, p_w, nom_w, crit_w, p_e, nom_e,
-                  decision, plan) -> str:  # fmt: skip
-    if decision == "continue":
-        outcome = f"continue to {plan.stages[look]} candidate seeds"
+def _look_reading(r: SequentialLook, plan: SequentialPlan) -> str:
+    if r.decision == "continue":
+        outcome = f"continue to {plan.stages[r.look]} candidate seeds"
     else:
         outcome = {
             "worse": "the candidate is worse: stop",
             "equivalent": "equivalent within the margin: stop",
             "final": "neither boundary crossed at the last look",
-        }[decision]
+        }[r.decision]
     return (
-        f"Look {look} of {plan.looks} ({nc} candidate vs {nb} baseline seeds): "
-        f"candidate - baseline = {fmt(estimate)}, repeated {fmt(100 * level)}% CI {interval}; "
-        f"worse beyond {fmt(shift)}: Welch {fmt_p(p_w)} vs boundary {fmt(nom_w)} (t >= {fmt(crit_w)}); "
-        f"within ±{fmt(margin)}: TOST {fmt_p(p_e)} vs {fmt(nom_e)}: {outcome}."
+        f"Look {r.look} of {plan.looks} ({r.n_candidate} candidate vs {r.n_baseline} baseline seeds): "
+        f"candidate - baseline = {fmt(r.estimate)}, repeated {fmt(100 * (1 - 2 * r.nominal_equivalence))}% "
+        f"CI {r.interval}; worse beyond {fmt(r.shift)}: Welch {fmt_p(r.pvalue_worse)} vs boundary "
+        f"{fmt(r.nominal_worse)} (t >= {fmt(r.critical_worse)}); within ±{fmt(r.margin)}: TOST "
+        f"{fmt_p(r.pvalue_equivalence)} vs {fmt(r.nominal_equivalence)}: {outcome}."
     )
 
 
@@ -400,22 +399,16 @@ def sequential_look(
 
     Notes
     -----
-    "worse" is checked first, then equivalence. Each is decided by the
-    significance level approach: the Welch p-value on this look's
-    Welch–Satterthwaite df against the nominal level of the look's normal-scale
-    boundary (Pocock 1977; Jennison & Turnbull 2000, ch. 3). Equivalence needs
-    both one-sided tests to pass, i.e. the repeated confidence interval inside
-    ``(-margin, margin)`` (Schuirmann 1987; Jennison & Turnbull 2000, ch. 6 and 9).
-    Constant groups give the degenerate result of :func:`~harness.stats.welch_test`
-    (a zero standard error: the difference is treated as exact).
+    "worse" is checked first, then equivalence, each by the significance level
+    approach (see the module notes). Constant groups give the degenerate result
+    of :func:`~harness.stats.welch_test` (standard error 0, the difference exact).
 
     References
     ----------
     .. [1] Pocock, S. J. (1977). Biometrika 64:191–199.
     .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
-       Applications to Clinical Trials. Chapman & Hall/CRC.
+       Applications to Clinical Trials. Chapman & Hall/CRC, ch. 3, 6 and 9.
     .. [3] Schuirmann, D. J. (1987). J. Pharmacokinetics and Biopharmaceutics 15:657–680.
-    .. [4] Welch, B. L. (1947). Biometrika 34:28–35.
 
     Examples
     --------
