@@ -28,6 +28,7 @@ __all__ = [
     "bootstrap_ci",
     "bootstrap_mean",
     "bootstrap_mean_difference",
+    "mean_difference",
 ]
 
 #: Interval methods of :func:`bootstrap_ci`.
@@ -312,7 +313,9 @@ def _mean(x: np.ndarray, axis: int = -1) -> np.ndarray:
     return np.mean(x, axis=axis)
 
 
-def _mean_difference(a: np.ndarray, b: np.ndarray, axis: int = -1) -> np.ndarray:
+def mean_difference(a: np.ndarray, b: np.ndarray, axis: int = -1) -> np.ndarray:
+    """``mean(a) - mean(b)`` along ``axis``: the vectorised two-sample statistic that the
+    bootstrap and the permutation test (``harness.stats.rank``) resample."""
     return np.mean(a, axis=axis) - np.mean(b, axis=axis)
 
 
@@ -334,4 +337,4 @@ def bootstrap_mean_difference(a: Sequence[float], b: Sequence[float], **options:
     .. [1] Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Bootstrap,
        section 16.2 (two-sample problems).
     """
-    return bootstrap_ci((a, b), _mean_difference, **options)
+    return bootstrap_ci((a, b), mean_difference, **options)

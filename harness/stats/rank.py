@@ -16,6 +16,7 @@ from harness.stats._validate import (
     check_positive_int,
     make_rng,
 )
+from harness.stats.bootstrap import mean_difference
 
 __all__ = [
     "MannWhitneyResult",
@@ -228,10 +229,6 @@ def mann_whitney_censored(
                          "Gehan's generalised Wilcoxon")  # fmt: skip
 
 
-def _mean_difference(a: np.ndarray, b: np.ndarray, axis: int = -1) -> np.ndarray:
-    return np.mean(a, axis=axis) - np.mean(b, axis=axis)
-
-
 def permutation_test_means(
     a: object,
     b: object,
@@ -282,7 +279,7 @@ def permutation_test_means(
     distinct = math.comb(x.size + y.size, x.size)
     res = _st.permutation_test(
         (x, y),
-        _mean_difference,
+        mean_difference,
         permutation_type="independent",
         vectorized=True,
         n_resamples=n_resamples,
@@ -290,7 +287,7 @@ def permutation_test_means(
         rng=gen,
     )
     exact = n_resamples >= distinct
-    estimate = float(np.mean(x) - np.mean(y))
+    estimate = float(mean_difference(x, y))
     pvalue = float(res.pvalue)
     used = distinct if exact else n_resamples
     how = f"all {distinct} relabellings" if exact else f"{n_resamples} random relabellings"
