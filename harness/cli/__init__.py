@@ -1,8 +1,8 @@
 """The ``rlharness`` command: a thin layer that parses arguments, calls the library and renders.
 
-Each subcommand lives in its own module of this package with a
-``register(subparsers)`` function that adds its parser and sets ``handler`` to a
-function ``(args, console) -> ExitCode``. Only ``harness.cli``,
+Each subcommand lives in a module of this package (``pin`` and ``drift``, two views of
+one ``[pins]`` table, share ``pins``) with a ``register(subparsers)`` function that adds
+its parsers and sets ``handler`` to a function ``(args, console) -> ExitCode``. Only ``harness.cli``,
 ``harness.report`` and ``harness.pytest_plugin`` import rich.
 """
 
@@ -33,8 +33,8 @@ class ExitCode(enum.IntEnum):
     INTERRUPTED = 130  #: interrupted by the user; finished runs are kept
 
 
-#: Subcommand modules under ``harness.cli``, in the order ``--help`` lists them.
-COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pin", "drift", "calibrate")
+#: Subcommand modules under ``harness.cli``, in the order ``--help`` lists their commands.
+COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pins", "calibrate")
 
 
 def build_parser() -> argparse.ArgumentParser:
