@@ -28,7 +28,7 @@ import numpy as np
 
 from harness.core.curves import Checkpoint
 from harness.trainers.envs import evaluate_policy, make_env
-from harness.trainers.tabular import TabularQSettings, evaluation_rng, greedy_action
+from harness.trainers.tabular import TabularQSettings, greedy_action
 
 
 def train(run):
@@ -48,7 +48,7 @@ def train(run):
             step += 1
             obs = env.reset()[0] if terminated or truncated else nxt
         returns = evaluate_policy(lambda o: greedy_action(q, int(o)), eval_env, run.evaluation.episode_seeds(),
-                                  epsilon=run.evaluation.epsilon, rng=evaluation_rng(run, step))
+                                  epsilon=run.evaluation.epsilon)
         yield Checkpoint(step, returns)
 
 

@@ -10,7 +10,9 @@ Each run's sequence is spawned into independent named streams (network
 initialisation, exploration, replay sampling, training environment).
 Evaluation episodes use one fixed stream shared by all runs and checkpoints, so
 every checkpoint of every run is scored on the same episode seeds (common
-random numbers). The global ``np.random`` state is never touched.
+random numbers); an episode's random actions (evaluation epsilon, the random
+policy) come from :func:`episode_action_rng` of its seed, so they are shared
+too. The global ``np.random`` state is never touched.
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ __all__ = [
     "STREAM_NAMES",
     "RunSeed",
     "RunStreams",
+    "episode_action_rng",
     "episode_seeds",
     "plan_seeds",
     "run_streams",
@@ -136,3 +139,21 @@ def episode_seeds(root: int, episodes: int) -> tuple[int, ...]:
     root = validate_seed(root, name="evaluation seed")
     state = np.random.SeedSequence(root).generate_state(episodes, dtype=np.uint32)
     return tuple(int(s) for s in state)
+
+
+def episode_action_rng(episode_seed: int) -> np.random.Generator:
+    """The Generator of an evaluation episode's random actions: the one rule for every trainer.
+
+    It is the first child of the episode's seed, ``SeedSequence(episode_seed, spawn_key=(0,))``,
+    independent of the environment's own generator (``reset(seed=episode_seed)``). Episode ``e``
+    meets the same random numbers at every checkpoint, in every run and whichever trainer (or
+    the random policy that sizes a margin) plays it, and however many episodes are played side
+    by side.
+
+    Examples
+    --------
+    >>> a, b = episode_action_rng(5), episode_action_rng(5)
+    >>> a.random() == b.random(), episode_action_rng(5).random() == episode_action_rng(6).random()
+    (True, False)
+    """
+    return np.random.default_rng(np.random.SeedSequence(validate_seed(episode_seed, name="episode seed"), spawn_key=(0,)))

@@ -152,15 +152,15 @@ def task_threshold(task: TaskSpec) -> float | None:
 def random_policy_return(task: TaskSpec, evaluation: EvaluationPlan) -> float:
     """Mean return of a uniformly random policy on the evaluation episodes.
 
-    Deterministic: the episode seeds are the evaluation's, and the random actions
-    come from a Generator seeded with the evaluation seed.
+    Deterministic: the episode seeds are the evaluation's, and each episode's random
+    actions come from its own Generator, as in a trainer's evaluation with epsilon
+    (:func:`harness.core.seeding.episode_action_rng`).
     """
     from harness.trainers.envs import evaluate_policy, make_env
 
     env = make_env(task)
     try:
-        rng = np.random.default_rng(np.random.SeedSequence(evaluation.seed, spawn_key=(0x52414E44,)))
-        returns = evaluate_policy(lambda obs: 0, env, evaluation.episode_seeds(), epsilon=1.0, rng=rng)
+        returns = evaluate_policy(lambda obs: 0, env, evaluation.episode_seeds(), epsilon=1.0)
     finally:
         env.close()
     return math.fsum(returns) / len(returns)

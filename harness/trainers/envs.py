@@ -16,6 +16,7 @@ import gymnasium as gym
 import numpy as np
 from gymnasium.wrappers import OrderEnforcing, PassiveEnvChecker, TimeLimit
 
+from harness.core.seeding import episode_action_rng
 from harness.core.spec import TaskSpec
 
 __all__ = ["LeanEnv", "evaluate_policy", "evaluate_stacked", "make_env"]
@@ -40,18 +41,19 @@ def evaluate_policy(
     seeds: Sequence[int],
     *,
     epsilon: float = 0.0,
-    rng: np.random.Generator | None = None,
 ) -> tuple[float, ...]:
     """Play one episode per seed with ``act`` and return each episode's undiscounted return.
 
     With ``epsilon > 0`` a uniformly random action replaces the policy's with
-    that probability, drawn from ``rng`` (required then).
+    that probability, drawn from the episode's own Generator
+    (:func:`harness.core.seeding.episode_action_rng`), as :func:`evaluate_stacked` draws it.
     """
-    if epsilon > 0 and rng is None:
-        raise ValueError("`rng` is required when `epsilon` > 0")
+    if not 0.0 <= epsilon <= 1.0:
+        raise ValueError(f"`epsilon` must be in [0, 1], got {epsilon!r}")
     n_actions = int(env.action_space.n)
     returns = []
     for seed in seeds:
+        rng = episode_action_rng(int(seed)) if epsilon > 0 else None
         obs, _ = env.reset(seed=int(seed))
         total = 0.0
         while True:
@@ -144,8 +146,8 @@ def evaluate_stacked(
         The ``(K, E, obs_dim)`` buffer ``act`` reads (e.g. a view of a network's input buffer).
     epsilon
         Probability of replacing the policy's action with a uniformly random
-        one. The draws of episode ``e`` come from a Generator spawned from
-        ``seeds[e]`` (independent of the environment's own generator), so
+        one. The draws of episode ``e`` come from its own Generator
+        (:func:`harness.core.seeding.episode_action_rng` of ``seeds[e]``), so
         every policy and every checkpoint meets the same random numbers.
 
     Returns
@@ -161,8 +163,7 @@ def evaluate_stacked(
     totals = [[0.0] * n_e for _ in range(n_k)]
     rngs = {}
     if epsilon > 0:
-        rngs = {(k, e): np.random.default_rng(np.random.SeedSequence(int(s)).spawn(1)[0])
-                for k in range(n_k) for e, s in enumerate(seeds)}
+        rngs = {(k, e): episode_action_rng(int(s)) for k in range(n_k) for e, s in enumerate(seeds)}
     for k in range(n_k):
         for e, s in enumerate(seeds):
             obs[k, e] = envs[k][e].reset(seed=int(s))

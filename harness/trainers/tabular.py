@@ -34,7 +34,7 @@ from harness.core.spec import RunSpec
 from harness.trainers.envs import evaluate_policy, make_env
 from harness.trainers.schedule import linear_decay
 
-__all__ = ["TabularQSettings", "evaluation_rng", "greedy_action", "learn", "train"]
+__all__ = ["TabularQSettings", "greedy_action", "learn", "train"]
 
 
 def _require_number(value: object, key: str, low: float, high: float, *, open_low: bool = False) -> None:
@@ -178,15 +178,6 @@ def learn(
         yield step, np.array(q, dtype=np.float64)
 
 
-def evaluation_rng(run: RunSpec, step: int) -> np.random.Generator:
-    """Generator of the evaluation's random actions at one checkpoint (used when epsilon > 0).
-
-    Derived from the evaluation seed and the checkpoint step only, so every run draws from the
-    same stream at the same checkpoint.
-    """
-    return np.random.default_rng(np.random.SeedSequence(run.evaluation.seed, spawn_key=(int(step),)))
-
-
 def train(run: RunSpec) -> Iterator[Checkpoint]:
     """Train tabular Q-learning for ``run.budget`` steps; yield a checkpoint at each checkpoint step."""
     settings = TabularQSettings(**run.config)
@@ -203,7 +194,6 @@ def train(run: RunSpec) -> Iterator[Checkpoint]:
                 eval_env,
                 seeds,
                 epsilon=run.evaluation.epsilon,
-                rng=evaluation_rng(run, step),
             )
             yield Checkpoint(step, returns)
     finally:
