@@ -19,6 +19,10 @@ from typing import Protocol
 
 from harness.core.curves import LearningCurve
 from harness.core.spec import RunSpec
+from harness.trainers.command import COMMAND_TRAINER
+
+#: Seconds the executor waits beyond a command run's time limit before stopping its worker.
+COMMAND_GRACE = 5.0
 
 __all__ = ["EVENT_KINDS", "Executor", "RunEvent", "WorkerResult", "Task"]
 
@@ -66,12 +70,15 @@ class RunEvent:
 class Task:
     """Runs trained together by one worker (several only when the trainer offers lockstep).
 
-    ``search_path`` is a folder where the worker may also look for a user trainer's module.
+    ``search_path`` is a folder where the worker may also look for a user trainer's module (the
+    manifest's folder); ``results_dir`` is the results folder, where a command trainer's runs
+    keep their curve file and output log.
     """
 
     specs: tuple[RunSpec, ...]
     time_limit: float | None = None
     search_path: str | None = None
+    results_dir: str | None = None
 
     def __post_init__(self) -> None:
         if not self.specs:
@@ -83,12 +90,20 @@ class Task:
 
     @property
     def deadline_seconds(self) -> float | None:
-        """The task's time budget: the per-run limit times the runs trained together."""
-        return None if self.time_limit is None else self.time_limit * len(self.specs)
+        """The task's time budget: the per-run limit times the runs trained together.
+
+        A command trainer's worker enforces the limit itself (stopping the program's process
+        group and keeping its log), so the executor's deadline is only a backstop a little later.
+        """
+        if self.time_limit is None:
+            return None
+        grace = COMMAND_GRACE if self.specs[0].trainer == COMMAND_TRAINER else 0.0
+        return self.time_limit * len(self.specs) + grace
 
     def payload(self) -> str:
         runs = [s.to_json() for s in self.specs]
-        return json.dumps({"runs": runs, "search_path": self.search_path}, allow_nan=False)
+        return json.dumps({"runs": runs, "search_path": self.search_path, "results_dir": self.results_dir,
+                           "time_limit": self.time_limit}, allow_nan=False)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

@@ -27,8 +27,11 @@ from multiprocessing.context import BaseContext
 
 from harness.execute.base import RunEvent, Task, WorkerResult
 from harness.execute.work import run_task
+from harness.trainers.command import stop_programs
 
 __all__ = ["LocalExecutor", "default_context", "worker_main"]
+
+_TERMINATE_WAIT = 3.0  # seconds a terminated worker gets to stop its programs before SIGKILL
 
 
 def default_context() -> str:
@@ -41,9 +44,12 @@ def worker_main(conn: mpc.Connection) -> None:
 
     Messages to the parent: ``("checkpoint", (index, seed, step, mean))``, then
     ``("done", run_task's reply)`` or ``("error", traceback)``. If the parent dies, the
-    next checkpoint event fails to send, which ends the task, and the worker exits.
+    next checkpoint event fails to send, which ends the task, and the worker exits. SIGTERM (how
+    the parent stops a worker) first stops the process groups of the programs a command
+    trainer started, so that no program outlives its worker.
     """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, _on_terminate)
 
     def emit(index: int, seed: str, step: int, mean: float) -> None:
         conn.send(("checkpoint", (index, seed, step, mean)))
@@ -63,6 +69,11 @@ def worker_main(conn: mpc.Connection) -> None:
             conn.send(reply)
         except OSError:  # the parent is gone (killed): nobody wants the result
             return
+
+
+def _on_terminate(signum: int, frame: object) -> None:
+    stop_programs()
+    os._exit(128 + signum)
 
 
 def _death_reason(exitcode: int | None) -> str:
@@ -91,8 +102,11 @@ class _Worker:
         self.started = 0.0
 
     def stop(self, *, kill: bool) -> None:
-        if kill:
-            self.process.kill()
+        if kill:  # SIGTERM first: the worker stops the programs it started, then exits at once
+            self.process.terminate()
+            self.process.join(timeout=_TERMINATE_WAIT)
+            if self.process.is_alive():
+                self.process.kill()
         else:
             try:
                 self.conn.send(None)

@@ -169,7 +169,8 @@ def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunR
     return None
 
 
-def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | None, search_path: str | None) -> list[Task]:
+def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | None, search_path: str | None,
+           results_dir: str) -> list[Task]:
     """Split the runs, in seed order, into lockstep groups of at most ``k`` seeds.
 
     The number of groups is rounded up to a multiple of the executor's ``slots`` (while
@@ -185,7 +186,7 @@ def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | Non
     tasks, start = [], 0
     for g in range(groups):
         end = start + size + (g < extra)
-        tasks.append(Task(tuple(specs[start:end]), time_limit, search_path))
+        tasks.append(Task(tuple(specs[start:end]), time_limit, search_path, results_dir))
         start = end
     return tasks
 
@@ -393,7 +394,8 @@ def run_specs(
         pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if todo else None
         try:
             if pool is not None:
-                _drive(run, pool, _tasks(todo, k, max(1, pool.capacity()), time_limit, search_path))
+                _drive(run, pool, _tasks(todo, k, max(1, pool.capacity()), time_limit, search_path,
+                                         str(folder.absolute())))
         finally:
             if pool is not None:
                 pool.close()
@@ -408,10 +410,13 @@ def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **op
     """Train every seed of ``manifest`` (a ``harness.manifest.loader.Manifest``); see :func:`run_specs`.
 
     ``results_dir`` defaults to ``results/<manifest name>/``; a user trainer's module is also
-    looked for in the manifest's folder, as when the manifest was loaded.
+    looked for in the manifest's folder, as when the manifest was loaded. A ``time_limit`` of
+    ``None`` takes the manifest's (``[trainer] time_limit`` of a command trainer), if any.
     """
     if results_dir is None:
         results_dir = Path(DEFAULT_RESULTS_DIR) / manifest.name
+    if options.get("time_limit") is None and manifest.time_limit is not None:
+        options["time_limit"] = manifest.time_limit
     if manifest.path is not None:
         options.setdefault("trainer_path", Path(manifest.path).resolve().parent)
     return run_specs(manifest.runs(), results_dir=results_dir, **options)

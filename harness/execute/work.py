@@ -17,6 +17,7 @@ import math
 import time
 import traceback
 from collections.abc import Callable, Iterable, Iterator
+from pathlib import Path
 
 from threadpoolctl import threadpool_limits
 
@@ -24,6 +25,7 @@ from harness.core.curves import Checkpoint, LearningCurve
 from harness.manifest.pins import installed_pins
 from harness.core.spec import RunSpec
 from harness.store.results import TRAINER_SOURCE
+from harness.trainers import command
 from harness.trainers.fingerprint import source_fingerprint
 from harness.trainers.registry import resolve_trainer
 
@@ -40,7 +42,12 @@ def installed_versions() -> dict[str, str]:
 
 def run_versions(spec: RunSpec, *, search_path: str | None = None) -> dict[str, str]:
     """What a stored run of ``spec`` must have been made with to be reused: the installed
-    versions, and the fingerprint of the trainer's source (``harness.trainers.fingerprint``)."""
+    versions, and the fingerprint of the trainer's source (``harness.trainers.fingerprint``; for a
+    command, ``command.source_fingerprint`` of its source files)."""
+    if spec.trainer == command.COMMAND_TRAINER:
+        settings = command.CommandSettings(**spec.config)
+        folder = (Path(search_path or ".") / settings.folder).resolve()
+        return {**installed_versions(), TRAINER_SOURCE: command.source_fingerprint(settings, folder)}
     trainer = resolve_trainer(spec.trainer, search_path=search_path)
     return {**installed_versions(), TRAINER_SOURCE: source_fingerprint(trainer.train)}
 
@@ -50,6 +57,8 @@ def lockstep_size(spec: RunSpec, *, search_path: str | None = None) -> int:
 
     Raises ``ManifestError`` when the trainer cannot be resolved.
     """
+    if spec.trainer == command.COMMAND_TRAINER:
+        return 1
     trainer = resolve_trainer(spec.trainer, search_path=search_path)
     if trainer.train_lockstep is None or trainer.lockstep_size is None:
         return 1
@@ -57,7 +66,9 @@ def lockstep_size(spec: RunSpec, *, search_path: str | None = None) -> int:
     return max(1, int(trainer.lockstep_size(settings)))
 
 
-def _stream(specs: list[RunSpec], search_path: str | None) -> Iterable[tuple[Checkpoint, ...]]:
+def _stream(specs: list[RunSpec], search_path: str | None, workspace: command.Workspace) -> Iterable[tuple[Checkpoint, ...]]:
+    if specs[0].trainer == command.COMMAND_TRAINER:
+        return ((cp,) for cp in command.train(specs[0], workspace))
     trainer = resolve_trainer(specs[0].trainer, search_path=search_path)
     if len(specs) == 1:
         return ((cp,) for cp in trainer.train(specs[0]))
@@ -77,13 +88,14 @@ def _check(cp: object, spec: RunSpec, expected: int | None) -> str | None:
     return None
 
 
-def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None) -> tuple[list[list[Checkpoint]], list[str | None]]:
+def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None,
+           workspace: command.Workspace) -> tuple[list[list[Checkpoint]], list[str | None]]:
     plan = specs[0].checkpoint_steps()
     curves: list[list[Checkpoint]] = [[] for _ in specs]
     failures: list[str | None] = [None] * len(specs)
     it: Iterator | None = None
     try:
-        it = iter(_stream(specs, search_path))
+        it = iter(_stream(specs, search_path, workspace))
         for n, group in enumerate(it, start=1):
             if len(group) != len(specs):
                 raise RuntimeError(f"lockstep trainer yielded {len(group)} checkpoints for {len(specs)} runs")
@@ -97,6 +109,9 @@ def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None) -> 
                         emit(spec.index, spec.seed.label, cp.step, cp.mean)
             if all(f is not None for f in failures):
                 break
+    except command.ProgramError as exc:  # the program's fault, told in its own words: no traceback of ours
+        reason = str(exc)
+        failures = [f if f is not None else reason for f in failures]
     except Exception:
         reason = traceback.format_exc()
         failures = [f if f is not None else reason for f in failures]
@@ -115,8 +130,10 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
     Parameters
     ----------
     payload
-        ``{"runs": [RunSpec.to_json(), ...], "search_path": folder or null}`` as JSON text; the
-        search path is where a user trainer's module may be found (the manifest's folder).
+        ``{"runs": [RunSpec.to_json(), ...], "search_path": folder or null, "results_dir": folder or
+        null, "time_limit": seconds or null}`` as JSON text; the search path is where a user
+        trainer's module may be found (the manifest's folder); a command trainer runs in the
+        results folder and stops its program at the time limit.
     emit
         Called with ``(index, seed label, step, mean return)`` after each accepted checkpoint.
 
@@ -129,8 +146,10 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
     data = json.loads(payload)
     specs = [RunSpec.from_json(d) for d in data["runs"]]
     start = time.perf_counter()
+    search_path = data.get("search_path")
+    workspace = command.Workspace(Path(search_path or "."), Path(data.get("results_dir") or "."), data.get("time_limit"))
     with threadpool_limits(limits=1):
-        curves, failures = _train(specs, data.get("search_path"), emit)
+        curves, failures = _train(specs, search_path, emit, workspace)
         versions = dict(installed_versions())
     runs = [
         {

@@ -37,6 +37,7 @@ from harness.manifest.pins import Pins
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.core.seeding import RunSeed, plan_seeds
 from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.trainers.command import COMMAND_TRAINER, CommandSettings, source_files
 from harness.trainers.registry import resolve_trainer
 
 __all__ = ["Manifest", "load_manifest", "parse_manifest"]
@@ -54,6 +55,7 @@ class _TaskTable:
     id: str
     options: Mapping[str, Any] = dataclasses.field(default_factory=dict)
     episode_step_limit: int | None = None
+    gymnasium: bool = True
 
     def __post_init__(self) -> None:
         if self.episode_step_limit is not None:
@@ -62,8 +64,37 @@ class _TaskTable:
 
 @dataclasses.dataclass(frozen=True, slots=True)
 class _TrainerTable:
-    use: str
-    settings: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+    use: str | None = None
+    settings: Mapping[str, Any] | None = None
+    command: tuple[str, ...] | None = None
+    folder: str | None = None
+    environment: Mapping[str, str] | None = None
+    sources: tuple[str, ...] | None = None
+    time_limit: float | None = None
+
+    def __post_init__(self) -> None:
+        if (self.use is None) == (self.command is None):
+            raise ConfigError(
+                "give either `use = \"name\"` (a built-in or \"package.module:function\") or "
+                "`command = [\"program\", \"arg\", ...]` (a training program), not both or neither",
+                key="use" if self.use is not None else None,
+            )
+        if self.use == COMMAND_TRAINER:
+            raise ConfigError("a training program is given as `command = [\"program\", \"arg\", ...]`", key="use")
+        if self.use is not None:
+            for key in ("folder", "environment", "sources", "time_limit"):
+                if getattr(self, key) is not None:
+                    raise ConfigError(f"`{key}` goes with `command = [...]`, not with `use`; remove it", key=key)
+        elif self.settings is not None:
+            raise ConfigError("a command takes no [trainer.settings]: pass values as arguments in `command`",
+                              key="settings")
+        if self.time_limit is not None and not self.time_limit > 0:
+            raise ConfigError(f"must be a positive number of seconds, got {self.time_limit!r}", key="time_limit")
+
+    def command_table(self) -> dict[str, Any]:
+        """The keys :class:`~harness.trainers.command.CommandSettings` takes, as given."""
+        keys = ("command", "folder", "environment", "sources")
+        return {key: getattr(self, key) for key in keys if getattr(self, key) is not None}
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -163,6 +194,9 @@ class Manifest:
         The ``[pins]`` table, or ``None`` when the manifest has not been pinned.
     config_hash
         ``"sha256:..."`` of :meth:`resolved_config`.
+    time_limit
+        ``[trainer] time_limit`` of a command trainer (seconds per seed), else ``None``; it
+        does not enter the config hash.
     """
 
     path: Path | None
@@ -178,6 +212,7 @@ class Manifest:
     references: tuple[PublishedReference, ...]
     pins: Pins | None
     config_hash: str
+    time_limit: float | None = None
 
     def resolved_config(self) -> dict[str, Any]:
         """The resolved training configuration: exactly what the config hash is taken of."""
@@ -270,6 +305,41 @@ def _check_options(spec: gym.envs.registration.EnvSpec, options: Mapping[str, An
             )
 
 
+def _check_own_task(table: _ManifestFile, *, path: str | None) -> None:
+    """A task outside gymnasium: only a command trains on it, and the gate's scale comes from [check]."""
+    if table.trainer.command is None:
+        raise ManifestError("a task outside gymnasium (`gymnasium = false`) is trained by a program: give "
+                            "`command = [...]` in [trainer], or use a gymnasium id", path=path, key="task.gymnasium")
+    if table.task.options:
+        raise ManifestError("options go to gymnasium.make; a task outside gymnasium takes none (pass them to "
+                            "the program in `command`)", path=path, key="task.options")
+    check = table.check
+    if "threshold" not in check:
+        raise ManifestError("a task outside gymnasium has no registered reward threshold: set `threshold` in "
+                            "[check] (the return that counts as solved)", path=path, key="check.threshold")
+    if not any(k in check for k in ("floor", "margin", "margins")):
+        raise ManifestError("a task outside gymnasium has no random-policy return to size the margin from: set "
+                            "`floor` (a random policy's return) or `margin` in [check]", path=path, key="check.floor")
+
+
+def _command_settings(table: _TrainerTable, base: Path, *, path: str | None) -> dict[str, Any]:
+    """Resolve a command's keys; its folder must exist and each source glob match a file."""
+    settings = config.resolve(CommandSettings, table.command_table(), path=path, key="trainer")
+    folder = (base / settings.folder).resolve()
+    if not folder.is_dir():
+        raise ManifestError(f"the working folder {str(folder)!r} does not exist; give it relative to the "
+                            "manifest's folder", path=path, key="trainer.folder")
+    for i, pattern in enumerate(settings.sources):
+        if not any(p.is_file() for p in folder.glob(pattern)):
+            raise ManifestError(f"{pattern!r} matches no file in {str(folder)!r}; fix the glob (relative to "
+                                "`folder`)", path=path, key=f"trainer.sources[{i}]")
+    if not source_files(settings, folder):
+        raise ManifestError("no source file fingerprints the program: name its files in `sources` (globs "
+                            "relative to `folder`), so that a changed program is never taken from the cache",
+                            path=path, key="trainer.sources")
+    return config.to_json(settings)
+
+
 def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manifest:
     """Parse and validate a manifest given as TOML text.
 
@@ -299,18 +369,26 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
     table = config.resolve(_ManifestFile, data, path=where)
     task = table.task
     step_limit = task.episode_step_limit
-    registered = _registered_task(task, path=where)
-    if step_limit is None:
-        step_limit = registered
-    if step_limit is None:
+    if not task.gymnasium:
+        _check_own_task(table, path=where)
+    else:
+        registered = _registered_task(task, path=where)
+        if step_limit is None:
+            step_limit = registered
+    if step_limit is None and task.gymnasium:
         raise ManifestError(
             f"{task.id!r} has no episode step limit registered with gymnasium; set "
             "`episode_step_limit = N` in [task] so that every episode (and evaluation) ends",
             path=where, key="task.episode_step_limit",
         )
     task_spec = TaskSpec(task.id, dict(task.options), step_limit)
-    trainer = resolve_trainer(table.trainer.use, search_path=search_path, path=where, key="trainer.use")
-    settings = trainer.resolve_settings(table.trainer.settings, path=where, key="trainer.settings")
+    if table.trainer.command is not None:
+        trainer_name = COMMAND_TRAINER
+        settings = _command_settings(table.trainer, search_path or Path.cwd(), path=where)
+    else:
+        trainer_name = table.trainer.use
+        trainer = resolve_trainer(trainer_name, search_path=search_path, path=where, key="trainer.use")
+        settings = trainer.resolve_settings(table.trainer.settings or {}, path=where, key="trainer.settings")
     budget = table.budget.env_steps
     if table.evaluation.every > budget:
         raise ManifestError(
@@ -330,13 +408,13 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         config.resolve(PublishedReference, ref, path=where, key=f"reference[{i}]") for i, ref in enumerate(table.reference)
     )
     pins = config.resolve(Pins, table.pins, path=where, key="pins") if table.pins else None
-    resolved = _resolved_config(task_spec, table.trainer.use, settings, budget, evaluation, seeds)
+    resolved = _resolved_config(task_spec, trainer_name, settings, budget, evaluation, seeds)
     return Manifest(
         path=None if path is None else Path(path),
         name=table.name,
         description=table.description,
         task=task_spec,
-        trainer=table.trainer.use,
+        trainer=trainer_name,
         settings=settings,
         budget=budget,
         evaluation=evaluation,
@@ -345,6 +423,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         references=references,
         pins=pins,
         config_hash=sha256_of(resolved),
+        time_limit=table.trainer.time_limit,
     )
 
 

@@ -28,6 +28,7 @@ from rich.text import Text
 from harness.execute import RunEvent
 from harness.gate.metrics import area_under_curve, final_return
 from harness.execute.runner import RunOutcome
+from harness.trainers.command import OUTPUT_PREFIX
 
 __all__ = ["RunProgress", "RunSummary", "format_return"]
 
@@ -152,6 +153,9 @@ class RunSummary:
         for record in failed:
             lines = record.failure.strip().splitlines()
             parts.append(Text(f"seed {record.spec.seed.label} failed: {lines[-1]}", style="red"))
+            output = [line for line in lines[:-1] if line.startswith(OUTPUT_PREFIX)]  # a command's last output lines
+            if output:
+                parts.append(Text("\n".join(output[-5:])))
         done = len(out.results.completed())
         total = len(out.results.records)
         counts = {s: sum(1 for v in out.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
