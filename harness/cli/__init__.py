@@ -34,7 +34,7 @@ class ExitCode(enum.IntEnum):
 
 
 #: Subcommand modules under ``harness.cli``, in the order ``--help`` lists their commands.
-COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "pins", "calibrate")
+COMMANDS: tuple[str, ...] = ("run", "record", "verify", "compare", "adopt", "pins", "calibrate")
 
 
 def build_parser() -> argparse.ArgumentParser:

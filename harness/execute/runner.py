@@ -170,7 +170,7 @@ def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunR
 
 
 def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | None, search_path: str | None,
-           results_dir: str) -> list[Task]:
+           results_dir: str | None = None) -> list[Task]:
     """Split the runs, in seed order, into lockstep groups of at most ``k`` seeds.
 
     The number of groups is rounded up to a multiple of the executor's ``slots`` (while

@@ -1,0 +1,48 @@
+"""The command-trainer example (examples/orchard/): a standalone script verified unchanged.
+
+Its baseline was recorded with `rlharness record orchard.toml` in that folder; here it is
+verified from scratch (exit 0, every curve bitwise identical), and the copy of the script
+with a planted bug must fail the gate (exit 1) with the metrics named.
+"""
+
+from __future__ import annotations
+
+import shutil
+from io import StringIO
+from pathlib import Path
+
+from rich.console import Console
+
+from harness.cli import ExitCode, main
+
+ORCHARD = Path(__file__).resolve().parents[1] / "examples" / "orchard"
+
+
+def _cli(*argv: str) -> tuple[int, str]:
+    out = StringIO()
+    code = main(list(argv), console=Console(file=out, width=120))
+    return code, out.getvalue()
+
+
+def _copy(tmp_path: Path, monkeypatch) -> Path:
+    folder = tmp_path / "orchard"
+    shutil.copytree(ORCHARD, folder, ignore=shutil.ignore_patterns("results", ".rlharness-cache", "__pycache__"))
+    monkeypatch.chdir(folder)
+    monkeypatch.setenv("RLHARNESS_CACHE_DIR", str(tmp_path / "cache"))
+    return folder
+
+
+def test_the_recorded_example_verifies_from_scratch_bitwise_identical(tmp_path, monkeypatch):
+    _copy(tmp_path, monkeypatch)
+    code, out = _cli("verify", "orchard.toml", "--fresh", "--workers", "2")
+    assert code == ExitCode.OK, out
+    assert "every seed's curve is bitwise identical to the baseline" in out
+
+
+def test_the_planted_bug_fails_the_gate_with_the_metric_named(tmp_path, monkeypatch):
+    folder = _copy(tmp_path, monkeypatch)
+    shutil.copy(folder / "irrigate_buggy.py", folder / "irrigate.py")
+    code, out = _cli("verify", "orchard.toml", "--workers", "2")
+    assert code == ExitCode.GATE_FAILED, out
+    assert "gate: final is significantly worse" in out and "gate: auc is significantly worse" in out
+    assert "the trainer's source code changed since the baseline" in out.replace("\n", " ")
