@@ -9,6 +9,7 @@ only the unfinished seeds).
 
 from __future__ import annotations
 
+import json
 import os
 import shutil
 import signal
@@ -142,8 +143,22 @@ def test_program_seed_is_the_listed_value_or_the_first_word_of_the_seed_sequence
     assert program_seed(RunSeed(2026, (3,))) == int(np.random.SeedSequence(2026, spawn_key=(3,)).generate_state(1)[0])
 
 
-@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM])
-def test_interrupted_run_exits_130_leaves_no_process_and_resumes_only_the_unfinished_seeds(tmp_path, signum):
+def _stragglers(tmp_path: Path, results: Path, wait: float) -> list[int]:
+    """Processes still alive that belong to the run: workers and programs (by command line), grandchildren (pid files)."""
+    deadline = time.monotonic() + wait
+    while True:
+        mine = [p.pid for p in psutil.process_iter(["cmdline"]) if str(tmp_path) in " ".join(p.info["cmdline"] or [])]
+        left = sorted({*mine, *(pid for pid in pids_of(results) if alive(pid))})
+        if not left or time.monotonic() > deadline:
+            return left
+        time.sleep(0.1)
+
+
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM, signal.SIGKILL])
+def test_interrupted_run_leaves_no_process_and_a_rerun_trains_only_the_unfinished_seeds(tmp_path, signum):
+    """Ctrl-C (SIGINT to the terminal's process group) and SIGTERM: exit 130 after stopping every
+    program. SIGKILL of rl-harness itself: the workers notice their parent is gone and stop their
+    programs within moments."""
     path = write_manifest(tmp_path / "m", extra=["--index", "{seed_index}"], seeds=[1, 2, 3])
     (tmp_path / "m" / "slow").write_text("1")
     results = tmp_path / "r"
@@ -155,15 +170,16 @@ def test_interrupted_run_exits_130_leaves_no_process_and_resumes_only_the_unfini
     while not ((results / "seed-1.json").exists() and len(pids_of(results)) == 4):
         assert time.monotonic() < deadline and cli.poll() is None, cli.stdout.read().decode()
         time.sleep(0.05)
-    os.killpg(cli.pid, signum) if signum == signal.SIGINT else cli.send_signal(signum)  # Ctrl-C reaches the group
+    if signum == signal.SIGINT:
+        os.killpg(cli.pid, signum)  # what Ctrl-C does: the whole foreground process group gets it
+    else:
+        cli.send_signal(signum)
     output = cli.communicate(timeout=60)[0].decode()
-    assert cli.returncode == 130, output
-    stragglers = [p.pid for p in psutil.process_iter(["cmdline"]) if str(tmp_path) in " ".join(p.info["cmdline"] or [])]
-    assert not stragglers and not any(alive(pid) for pid in pids_of(results))
-    done = sorted(p.name for p in results.glob("seed-*.json"))
-    assert done == ["seed-1.json"]
+    assert cli.returncode == (-9 if signum == signal.SIGKILL else 130), output
+    assert _stragglers(tmp_path, results, wait=0 if signum != signal.SIGKILL else 10) == []
+    assert sorted(p.name for p in results.glob("seed-*.json")) == ["seed-1.json"]
     (tmp_path / "m" / "slow").unlink()
     code = main(["run", str(path), "--results", str(results), "--workers", "2", "--no-cache"])
     assert code == 0
-    index = __import__("json").loads((results / "index.json").read_text())
+    index = json.loads((results / "index.json").read_text())
     assert [r["source"] for r in index["runs"]] == ["resumed", "trained", "trained"]
