@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import subprocess
 from io import StringIO
 from pathlib import Path
 
@@ -82,9 +83,19 @@ def test_a_baseline_recorded_from_adopted_runs_names_the_files_and_verifies_a_re
     sha = hashlib.sha256(files[0].read_bytes()).hexdigest()
     assert f"sha256:{sha}" in out and "nothing was rerun" in out
     assert [r["source"] for r in read_index(tmp_path / "m" / "results" / "toy-command")["runs"]] == ["adopted"] * 3
+    git = ["git", "-c", "user.name=t", "-c", "user.email=t@example.org"]
+    for args in (["init", "-q"], ["add", "m.toml", "curve_writer.py"], ["commit", "-qm", "program"]):
+        subprocess.run([*git, *args], cwd=tmp_path / "m", check=True)
+    head = subprocess.run(["git", "rev-parse", "HEAD"], cwd=tmp_path / "m", capture_output=True, text=True).stdout
     code, out = _cli("record", "m.toml", "--no-run")
     assert code == ExitCode.OK, out
     baseline = json.loads((tmp_path / "m" / "baselines" / "toy-command.json").read_text())
+    # the program folder's commit, as information; an edit of a tracked file is marked
+    assert baseline["recording"]["program_git_commit"] == head.strip()
+    (tmp_path / "m" / "curve_writer.py").write_text((tmp_path / "m" / "curve_writer.py").read_text() + "\n")
+    assert _cli("record", "m.toml", "--no-run", "--overwrite")[0] == ExitCode.OK
+    baseline = json.loads((tmp_path / "m" / "baselines" / "toy-command.json").read_text())
+    assert baseline["recording"]["program_git_commit"] == head.strip() + "+changes"
     assert f"curve.csv sha256:{sha}" in baseline["versions"]["adopted_files"]
     assert baseline["versions"]["adopted"].startswith("nothing was rerun")
     code, out = _cli("verify", "m.toml", "--no-run", "--results", tmp_path / "old")
@@ -110,3 +121,13 @@ def test_malformed_files_are_refused_with_file_line_and_column_and_nothing_is_wr
     assert code == ExitCode.OK
     code, out = _cli("adopt", manifest, tmp_path / "1.csv", tmp_path / "1.csv", "--results", out_dir)
     assert code == ExitCode.BAD_INPUT and "already holds results" in out
+
+
+def test_compare_of_a_programs_own_task_needs_the_scale_from_the_manifest_or_the_command_line(tmp_path):
+    manifest = write_manifest(tmp_path / "m", seeds=[1, 2])
+    rows = b"".join(f"{s},{e},{s / 100 + e}\n".encode() for s in (0, 25, 50, 75, 100) for e in range(3))
+    (tmp_path / "1.csv").write_bytes(b"# rlharness-curve 1\nstep,episode,return\n" + rows)
+    assert _cli("adopt", manifest, tmp_path / "1.csv", tmp_path / "1.csv", "--results", tmp_path / "a")[0] == 0
+    code, out = _cli("compare", tmp_path / "a", tmp_path / "a")
+    assert code == ExitCode.BAD_INPUT and "'Toy-v0' is not a gymnasium task" in out
+    assert _cli("compare", tmp_path / "a", tmp_path / "a", "--manifest", manifest)[0] == ExitCode.OK

@@ -89,7 +89,7 @@ def test_a_program_trains_every_seed_and_the_records_hold_its_curve_file_exactly
 
 
 def test_failure_modes_fail_only_their_own_seed_with_the_reason_and_the_program_output(tmp_path):
-    modes = {2: "exit1", 3: "nan", 4: "offplan", 5: "nofile", 6: "fewer", 7: "hang"}
+    modes = {2: "exit1", 3: "nan", 4: "offplan", 5: "nofile", 6: "fewer", 7: "hang", 8: "replace"}
     extra = [a for seed, mode in modes.items() for a in ("--fail", f"{seed}={mode}")]
     path = write_manifest(tmp_path / "m", extra=extra, keys="time_limit = 3", seeds=[1, *modes])
     code = main(["run", str(path), "--results", str(tmp_path / "r"), "--workers", "2", "--no-cache"])
@@ -103,6 +103,7 @@ def test_failure_modes_fail_only_their_own_seed_with_the_reason_and_the_program_
     assert "without writing its curve file" in last["5"]
     assert "step 25 has 2 evaluation episodes, the manifest declares 3" in last["6"]
     assert "ran past the time limit of 3 s" in last["7"]
+    assert "the curve file was replaced, truncated or removed while the program ran" in last["8"]
     hung = pids_of(tmp_path / "r")
     assert len(hung) == 2  # the hanging program and its grandchild: both gone with the process group
     assert not any(alive(pid) for pid in hung)

@@ -53,7 +53,9 @@ def test_written_files_read_back_bit_for_bit():
         (b"# rlharness-curve 1\nstep,episode,return\n0,0,1\n50,0,1\n", 4, 1, "step 0 has 1 evaluation episodes"),
         (b"# rlharness-curve 1\nstep,episode,return\n0,0,1\n0,1,1\n", 5, 1, "ends after 1 of 3 planned checkpoints"),
         (b"# rlharness-curve 1\n", 2, 1, "ends before line 2"),
-        (GOOD + b"100,2,1\n", 9, 1, "after the last planned checkpoint"),
+        (GOOD + b"150,0,1\n", 9, 1, "after the last planned checkpoint"),
+        (GOOD + b"100,2,1\n", 9, 1, "step 100 has more than 2 evaluation episodes"),
+        (GOOD.replace(b"50,0,1e-3", b"0,2,1e-3"), 5, 1, "step 0 has more than 2 evaluation episodes"),
         (b"# rlharness-curve 1\nstep,episode,return\n0,0,\xff\n", 3, 5, "not UTF-8"),
     ],
 )

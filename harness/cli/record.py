@@ -23,6 +23,15 @@ from harness.core.errors import RunFailedError
 __all__ = ["register"]
 
 
+def _program_commit(manifest: Any) -> str | None:
+    """The git commit of a training program's folder (``command = [...]``), if it is a checkout."""
+    from harness.trainers.command import COMMAND_TRAINER, git_commit
+
+    if manifest.trainer != COMMAND_TRAINER or manifest.path is None:
+        return None
+    return git_commit((Path(manifest.path).resolve().parent / manifest.settings["folder"]).resolve())
+
+
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.store.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
     from harness.manifest.loader import load_manifest
@@ -43,6 +52,9 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
         "workers": str(args.workers or os.cpu_count()),
         "runs": ", ".join(f"{n} {source}" for source, n in sorted(sources.items())),
     }
+    commit = _program_commit(manifest)
+    if commit is not None:  # information only: the trainer's fingerprint is its files' content
+        recording["program_git_commit"] = commit
     baseline = baseline_from_results(manifest, results, recording=recording)
     written = write_baseline(baseline, path, overwrite=args.overwrite)
     console.print(

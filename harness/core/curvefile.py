@@ -207,10 +207,13 @@ class CurveAssembler:
         n = len(self.done)
         step_col = row.columns[-3] if row.columns else 1
         episode_col = row.columns[-2] if row.columns else 1
-        if n == len(self.steps):
+        if n == len(self.steps) and row.step != self.steps[-1]:
             raise CurveFileError(f"a row at step {row.step} after the last planned checkpoint (plan {list(self.steps)})",
                                  file=self.where, line=row.line, column=step_col)
-        expected = self.steps[n]
+        expected = self.steps[min(n, len(self.steps) - 1)]
+        if not self._returns and self.done and row.step == self.done[-1].step:
+            raise CurveFileError(f"step {row.step} has more than {self.episodes} evaluation episodes, the manifest "
+                                 f"declares {self.episodes}", file=self.where, line=row.line, column=step_col)
         if row.step != expected:
             if self._returns and row.step in self.steps:
                 raise CurveFileError(f"step {expected} has {len(self._returns)} evaluation episodes, "

@@ -142,10 +142,14 @@ def _config_of_specs(specs: Sequence[Any]) -> dict:
 
 
 def task_threshold(task: TaskSpec) -> float | None:
-    """The reward threshold registered with gymnasium for the task, or ``None``."""
+    """The reward threshold registered with gymnasium for the task, or ``None`` (also for a task
+    gymnasium does not know: a training program's own task)."""
     import gymnasium
 
-    value = gymnasium.spec(task.id).reward_threshold
+    try:
+        value = gymnasium.spec(task.id).reward_threshold
+    except gymnasium.error.Error:
+        return None
     return None if value is None else float(value)
 
 
@@ -156,8 +160,17 @@ def random_policy_return(task: TaskSpec, evaluation: EvaluationPlan) -> float:
     actions come from its own Generator, as in a trainer's evaluation with epsilon
     (:func:`harness.core.seeding.episode_action_rng`).
     """
+    import gymnasium
+
     from harness.trainers.envs import evaluate_policy, make_env
 
+    try:
+        gymnasium.spec(task.id)
+    except gymnasium.error.Error:
+        raise ResultsError(
+            f"task {task.id!r} is not a gymnasium task, so there is no random policy to size the margin from: "
+            "give the policy's floor or margin ([check] floor / margin, or --manifest, or --margin)"
+        ) from None
     env = make_env(task)
     try:
         returns = evaluate_policy(lambda obs: 0, env, evaluation.episode_seeds(), epsilon=1.0)

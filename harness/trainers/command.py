@@ -36,12 +36,13 @@ import sys
 import time
 from collections.abc import Iterator, Mapping
 from pathlib import Path
+from typing import BinaryIO
 
 import numpy as np
 
 from harness.core.curvefile import CurveAssembler, CurveFileError, LineParser
 from harness.core.curves import Checkpoint
-from harness.core.errors import ConfigError, did_you_mean
+from harness.core.errors import ConfigError, HarnessError, did_you_mean
 from harness.core.seeding import RunSeed
 from harness.core.spec import RunSpec
 
@@ -91,7 +92,7 @@ OUTPUT_PREFIX = "  | "
 _GRACE = 0.5  # seconds a stopped program gets between SIGTERM and SIGKILL
 
 
-class ProgramError(RuntimeError):
+class ProgramError(HarnessError, RuntimeError):
     """The program's run failed; the message ends with a one-line reason."""
 
 
@@ -227,19 +228,20 @@ def source_fingerprint(settings: CommandSettings, folder: Path) -> str:
 
 
 def git_commit(folder: Path) -> str | None:
-    """The commit checked out in ``folder`` (with ``+changes`` when files differ from it), or ``None``."""
+    """The commit checked out in ``folder`` (with ``+changes`` when tracked files differ from it), or ``None``."""
     try:
         head = subprocess.run(["git", "-C", str(folder), "rev-parse", "HEAD"], capture_output=True, text=True, timeout=10)
         if head.returncode != 0:
             return None
-        status = subprocess.run(["git", "-C", str(folder), "status", "--porcelain", "--", "."],
-                                capture_output=True, text=True, timeout=10)
+        status = subprocess.run(["git", "-C", str(folder), "status", "--porcelain", "--untracked-files=no", "--",
+                                 "."], capture_output=True, text=True, timeout=10)
     except (OSError, subprocess.TimeoutExpired):
         return None
     return head.stdout.strip() + ("+changes" if status.stdout.strip() else "")
 
 
-# Programs running in this process, by process group id, so that a stop reaches them all.
+# Programs running in this process, by process group id: the one piece of process state, so that
+# a signal handler (a worker told to stop) and atexit reach every program still running.
 _LIVE: dict[int, subprocess.Popen] = {}
 
 
@@ -296,6 +298,17 @@ def _parent_gone() -> bool:
     return parent is not None and not parent.is_alive()
 
 
+def _check_same_file(curve: Path, stream: BinaryIO) -> None:
+    """The program must append to its curve file: replacing or truncating it would mix two versions."""
+    try:
+        now = os.stat(curve)
+    except FileNotFoundError:
+        now = None
+    if now is None or now.st_ino != os.fstat(stream.fileno()).st_ino or now.st_size < stream.tell():
+        raise CurveFileError("the curve file was replaced, truncated or removed while the program ran; write it once, "
+                             "appending lines (or write it whole when training ends)", file=str(curve), line=1)
+
+
 def train(run: RunSpec, workspace: Workspace) -> Iterator[Checkpoint]:
     """Run the program for one seed and yield its checkpoints as the curve file grows.
 
@@ -338,6 +351,7 @@ def train(run: RunSpec, workspace: Workspace) -> Iterator[Checkpoint]:
                 if stream is None and curve.exists():
                     stream = open(curve, "rb")
                 if stream is not None:
+                    _check_same_file(curve, stream)
                     for row in parser.feed(stream.read()):
                         checkpoint = assembler.add(row)
                         if checkpoint is not None:

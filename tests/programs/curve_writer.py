@@ -4,7 +4,8 @@ Writes a curve file (format "rlharness-curve 1") for one seed, one checkpoint at
 with returns drawn from ``random.Random(seed)`` (standard library only, so it starts fast).
 ``--fail SEED=MODE`` makes that seed misbehave: exit1, nan, offplan, nofile, fewer (one episode
 short at the second checkpoint), hang (sleeps; with a grandchild process, their pids written to
-the run folder's ``pids`` file).
+the run folder's ``pids`` file), replace (after the first checkpoint, waits a second and replaces
+the file by a new one with the same lines).
 If the file ``slow`` exists in the working folder, the program sleeps its content (seconds)
 times ``--index`` before each checkpoint (writing the pid file first); it is not part of
 the command, so a rerun without it has the same configuration.
@@ -60,4 +61,11 @@ with open(args.out, "w") as out:
                 value = float("nan")
             out.write(f"{step},{episode},{value!r}\n")
         out.flush()
+        if n == 0 and mode == "replace":
+            time.sleep(1.0)
+            with open(args.out, "rb") as f:
+                data = f.read()
+            with open(args.out + ".new", "wb") as f:
+                f.write(data)
+            os.replace(args.out + ".new", args.out)
 print("done")
