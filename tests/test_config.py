@@ -8,8 +8,10 @@ import json
 from collections.abc import Mapping
 from typing import Any, Literal
 
+import numpy as np
 import pytest
 
+from harness.core import config
 from harness.core.config import check_json_value, resolve, to_json
 from harness.core.errors import ConfigError, ManifestError
 
@@ -99,3 +101,32 @@ def test_to_json_round_trips_through_json_and_back():
 
 def test_check_json_value_turns_arrays_into_tuples():
     assert check_json_value({"a": [1, [2]]}, path=None, key="k") == {"a": (1, (2,))}
+
+
+@pytest.mark.parametrize(
+    ("value", "bounds", "message"),
+    [
+        (1.5, dict(low=0, high=1), r"\[k\]: must be a number in \[0, 1\], got 1.5"),
+        (0.0, dict(low=0, high=1, open_low=True), r"must be a number in \(0, 1\], got 0.0"),
+        (1.0, dict(low=0, high=1, open_high=True), r"must be a number in \[0, 1\), got 1.0"),
+        (0.5, dict(low=0, high=0.5, open_low=True, open_high=True), r"must be a number strictly between 0 and 0.5"),
+        (0, dict(low=0, open_low=True), r"must be a positive finite number, got 0"),
+        (float("nan"), {}, r"must be a finite number, got nan"),
+        (True, {}, r"must be a finite number, got True"),
+        ("1", {}, r"must be a finite number, got '1'"),
+        (0, dict(low=1, integer=True), r"must be a positive integer, got 0"),
+        (-1, dict(low=0, integer=True), r"must be a non-negative integer, got -1"),
+        (98, dict(low=99, integer=True), r"must be an integer of at least 99, got 98"),
+        (2.0, dict(low=1, integer=True), r"must be a positive integer, got 2.0"),
+    ],
+)
+def test_check_number_names_the_key_the_interval_and_the_value(value, bounds, message):
+    with pytest.raises(ConfigError, match=message) as info:
+        config.check_number(value, "k", **bounds)
+    assert info.value.key == "k"
+
+
+def test_check_number_accepts_the_ends_it_closes_and_numpy_scalars():
+    assert config.check_number(0, "k", low=0, high=1) == 0.0 and config.check_number(1, "k", low=0, high=1) == 1.0
+    assert type(config.check_number(np.float32(0.25), "k", low=0, high=1)) is float
+    assert config.check_number(np.int64(3), "k", low=1, integer=True) == 3

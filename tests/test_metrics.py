@@ -86,5 +86,7 @@ def test_metrics_iv():
         final_return(LearningCurve(()))
     with pytest.raises(ValueError, match=r"non-finite evaluation return at step 1000"):
         area_under_curve(curve([(0, [1.0]), (1000, [float("nan")])]))
-    with pytest.raises(ValueError, match=r"`threshold` must be a finite number"):
+    with pytest.raises(ValueError, match=r"`threshold` must be finite, got inf"):
         steps_to_threshold(RISING, float("inf"))
+    with pytest.raises(TypeError, match=r"`threshold` must be a real number, got True"):
+        steps_to_threshold(RISING, True)

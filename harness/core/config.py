@@ -2,8 +2,8 @@
 
 A schema is a ``@dataclass(frozen=True, slots=True)``: its field names are the
 keys, its defaults are the defaults, its annotations are the types and its
-``__post_init__`` checks ranges by raising
-``harness.core.errors.ConfigError(message, key="field")``. :func:`resolve` turns a
+``__post_init__`` checks ranges with :func:`check_number` (or raises
+``harness.core.errors.ConfigError(message, key="field")`` for other rules). :func:`resolve` turns a
 mapping read from TOML into an instance of the schema and reports every problem
 as a :class:`~harness.core.errors.ConfigError` carrying the file, the full dotted key
 path (``"trainer.settings.discount"``) and the fix.
@@ -20,6 +20,7 @@ from __future__ import annotations
 import dataclasses
 import datetime
 import math
+import numbers
 import types
 import typing
 from collections.abc import Mapping
@@ -27,7 +28,7 @@ from typing import Any, TypeVar
 
 from harness.core.errors import ConfigError, ManifestError, did_you_mean
 
-__all__ = ["check_json_value", "resolve", "to_json"]
+__all__ = ["check_json_value", "check_number", "resolve", "to_json"]
 
 T = TypeVar("T")
 
@@ -76,6 +77,61 @@ def check_json_value(value: Any, *, path: str | None, key: str) -> Any:
     if value is None or isinstance(value, (bool, int, float, str)):
         return value
     raise ConfigError(f"must be a TOML value, got {_describe(value)}", path=path, key=key)
+
+
+def _range_words(low: float, high: float, open_low: bool, open_high: bool, integer: bool) -> str:
+    if integer:
+        if high == math.inf:
+            return {0: "a non-negative integer", 1: "a positive integer"}.get(low, f"an integer of at least {low:g}")
+        return f"an integer in [{low:g}, {high:g}]"
+    if (low, high) == (-math.inf, math.inf):
+        return "a finite number"
+    if (low, high, open_low) == (0, math.inf, True):
+        return "a positive finite number"
+    if open_low and open_high and math.isfinite(low) and math.isfinite(high):
+        return f"a number strictly between {low:g} and {high:g}"
+    return f"a number in {'(' if open_low else '['}{low:g}, {high:g}{')' if open_high else ']'}"
+
+
+def check_number(
+    value: object,
+    key: str,
+    *,
+    low: float = -math.inf,
+    high: float = math.inf,
+    open_low: bool = False,
+    open_high: bool = False,
+    integer: bool = False,
+) -> Any:
+    """The one range check of a settings value: ``value`` as a float (an int with ``integer``).
+
+    For a schema's ``__post_init__`` (a trainer's settings, a manifest table, the gate
+    policy): the value must be a finite real number (an integer with ``integer``; never a
+    boolean) in the interval from ``low`` to ``high``, each end closed unless ``open_low`` /
+    ``open_high``. NumPy scalars count as numbers.
+
+    Raises
+    ------
+    ConfigError
+        Naming ``key``, the interval in words and the value, e.g. ``[discount]: must be a
+        number in [0, 1], got 1.5`` or ``[every]: must be a positive integer, got 0``.
+
+    Examples
+    --------
+    >>> check_number(1, "discount", low=0, high=1)
+    1.0
+    >>> check_number(0.0, "step_size", low=0, open_low=True)
+    Traceback (most recent call last):
+    ...
+    harness.core.errors.ConfigError: [step_size]: must be a positive finite number, got 0.0
+    """
+    kind = numbers.Integral if integer else numbers.Real
+    ok = isinstance(value, kind) and not isinstance(value, bool) and math.isfinite(value)
+    if ok:
+        ok = (low < value if open_low else low <= value) and (value < high if open_high else value <= high)
+    if not ok:
+        raise ConfigError(f"must be {_range_words(low, high, open_low, open_high, integer)}, got {value!r}", key=key)
+    return int(value) if integer else float(value)
 
 
 def _convert(value: Any, hint: Any, *, path: str | None, key: str) -> Any:

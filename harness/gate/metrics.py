@@ -9,13 +9,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import numbers
 from collections.abc import Callable, Mapping
 from types import MappingProxyType
 
 import numpy as np
 
 from harness.core.curves import LearningCurve
+from harness.stats._validate import check_finite_number
 
 __all__ = [
     "METRICS",
@@ -43,12 +43,6 @@ def _curve_iv(curve: object) -> np.ndarray:
     return curve.means
 
 
-def _real_iv(value: object, name: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
-        raise ValueError(f"`{name}` must be a finite number, got {value!r}")
-    return float(value)
-
-
 def final_return(curve: LearningCurve, *, fraction: float = 0.1) -> float:
     """Mean evaluation return over the last ``fraction`` of the checkpoints.
 
@@ -65,7 +59,7 @@ def final_return(curve: LearningCurve, *, fraction: float = 0.1) -> float:
     40.0
     """
     means = _curve_iv(curve)
-    frac = _real_iv(fraction, "fraction")
+    frac = check_finite_number(fraction, "fraction")
     if not 0.0 < frac <= 1.0:
         raise ValueError(f"`fraction` must lie in (0, 1], got {fraction!r}")
     k = max(1, math.ceil(frac * means.size - 1e-9))
@@ -133,7 +127,7 @@ def steps_to_threshold(curve: LearningCurve, threshold: float) -> ThresholdResul
     False
     """
     means = _curve_iv(curve)
-    thr = _real_iv(threshold, "threshold")
+    thr = check_finite_number(threshold, "threshold")
     hits = np.flatnonzero(means >= thr)
     steps = curve.steps
     if hits.size:
@@ -158,8 +152,8 @@ def normalised_score(x: float | np.ndarray, random_return: float, threshold: flo
     >>> normalised_score(250.0, 20.0, 480.0)
     0.5
     """
-    r = _real_iv(random_return, "random_return")
-    t = _real_iv(threshold, "threshold")
+    r = check_finite_number(random_return, "random_return")
+    t = check_finite_number(threshold, "threshold")
     if t == r:
         raise ValueError(
             f"`threshold` equals `random_return` ({t!r}): the scale would be empty; "

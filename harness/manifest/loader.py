@@ -45,11 +45,6 @@ __all__ = ["Manifest", "load_manifest", "parse_manifest"]
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
 
 
-def _positive_int(value: int, key: str) -> None:
-    if value < 1:
-        raise ConfigError(f"must be a positive integer, got {value!r}", key=key)
-
-
 @dataclasses.dataclass(frozen=True, slots=True)
 class _TaskTable:
     id: str
@@ -59,7 +54,7 @@ class _TaskTable:
 
     def __post_init__(self) -> None:
         if self.episode_step_limit is not None:
-            _positive_int(self.episode_step_limit, "episode_step_limit")
+            config.check_number(self.episode_step_limit, "episode_step_limit", low=1, integer=True)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -102,7 +97,7 @@ class _BudgetTable:
     env_steps: int
 
     def __post_init__(self) -> None:
-        _positive_int(self.env_steps, "env_steps")
+        config.check_number(self.env_steps, "env_steps", low=1, integer=True)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -113,12 +108,10 @@ class _EvaluationTable:
     epsilon: float = 0.0
 
     def __post_init__(self) -> None:
-        _positive_int(self.every, "every")
-        _positive_int(self.episodes, "episodes")
-        if self.episode_seed < 0:
-            raise ConfigError(f"must be a non-negative integer, got {self.episode_seed!r}", key="episode_seed")
-        if not 0.0 <= self.epsilon <= 1.0:
-            raise ConfigError(f"must be in [0, 1] (0 = greedy), got {self.epsilon!r}", key="epsilon")
+        for key in ("every", "episodes"):
+            config.check_number(getattr(self, key), key, low=1, integer=True)
+        config.check_number(self.episode_seed, "episode_seed", low=0, integer=True)
+        config.check_number(self.epsilon, "epsilon", low=0, high=1)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)

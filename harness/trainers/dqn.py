@@ -26,7 +26,6 @@ Q-learning, AAAI.
 from __future__ import annotations
 
 import dataclasses
-import math
 from collections.abc import Iterator, Sequence
 
 import gymnasium as gym
@@ -124,22 +123,22 @@ class DQNSettings:
         if not isinstance(hidden, tuple) or not hidden or not all(_is_int(h) and h >= 1 for h in hidden):
             raise ConfigError(f"must be a non-empty list of positive integers, got {self.hidden!r}", key="hidden")
         for name in ("memory_size", "minibatch", "update_every", "target_sync_every"):
-            _check_int(self, name, low=1)
+            config.check_number(getattr(self, name), name, low=1, integer=True)
         for name in ("warmup_steps", "explore_decay_steps"):
-            _check_int(self, name, low=0)
+            config.check_number(getattr(self, name), name, low=0, integer=True)
         if self.minibatch > self.memory_size:
             raise ConfigError(
                 f"must not exceed memory_size={self.memory_size}, got {self.minibatch}; "
                 "lower minibatch or raise memory_size", key="minibatch")
-        for name in ("discount", "explore_start", "explore_end", "polyak_rate"):
-            _check_float(self, name, low=0.0, high=1.0)
-        for name in ("adam_beta1", "adam_beta2"):
-            _check_float(self, name, low=0.0, high=1.0, open_high=True)
-        for name in ("step_size", "adam_eps", "huber_delta"):
-            _check_float(self, name, low=0.0, high=math.inf, open_low=True, open_high=True)
-        _check_float(self, "max_grad_norm", low=0.0, high=math.inf, open_high=True)
+        ranges = {name: {"high": 1} for name in ("discount", "explore_start", "explore_end", "polyak_rate")}
+        ranges |= {name: {"high": 1, "open_high": True} for name in ("adam_beta1", "adam_beta2")}
+        ranges |= {name: {"open_low": True} for name in ("step_size", "adam_eps", "huber_delta")}
+        ranges["max_grad_norm"] = {}
+        for name, bounds in ranges.items():
+            object.__setattr__(self, name, config.check_number(getattr(self, name), name, low=0, **bounds))
         if self.step_size_end is not None:
-            _check_float(self, "step_size_end", low=0.0, high=self.step_size)
+            end = config.check_number(self.step_size_end, "step_size_end", low=0, high=self.step_size)
+            object.__setattr__(self, "step_size_end", end)
         if self.target == "polyak" and self.polyak_rate == 0:
             raise ConfigError("must be positive with target = 'polyak', got 0", key="polyak_rate")
         if not isinstance(self.double_q, bool):
@@ -153,27 +152,6 @@ class DQNSettings:
 
 def _is_int(value: object) -> bool:
     return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
-
-
-def _check_int(settings: DQNSettings, name: str, *, low: int) -> None:
-    value = getattr(settings, name)
-    if not _is_int(value) or value < low:
-        kind = "a positive integer" if low == 1 else "a non-negative integer"
-        raise ConfigError(f"must be {kind}, got {value!r}", key=name)
-
-
-def _check_float(
-    settings: DQNSettings, name: str, *, low: float, high: float, open_low: bool = False, open_high: bool = False
-) -> None:
-    value = getattr(settings, name)
-    if isinstance(value, bool) or not isinstance(value, (int, float, np.floating, np.integer)):
-        raise ConfigError(f"must be a number, got {value!r}", key=name)
-    above = value > low if open_low else value >= low
-    below = value < high if open_high else value <= high
-    if not (above and below):  # also catches NaN
-        interval = f"{'(' if open_low else '['}{low}, {high}{')' if open_high else ']'}"
-        raise ConfigError(f"must be in {interval}, got {value!r}", key=name)
-    object.__setattr__(settings, name, float(value))
 
 
 def bellman_targets(

@@ -22,28 +22,18 @@ and small (Taxi-v4 is 500 x 6).
 from __future__ import annotations
 
 import dataclasses
-import math
 from collections.abc import Iterator, Sequence
 
 import gymnasium as gym
 import numpy as np
 
+from harness.core.config import check_number
 from harness.core.curves import Checkpoint
-from harness.core.errors import ConfigError
 from harness.core.spec import RunSpec
 from harness.trainers.envs import evaluate_policy, make_env
 from harness.trainers.schedule import linear_decay
 
 __all__ = ["TabularQSettings", "greedy_action", "learn", "train"]
-
-
-def _require_number(value: object, key: str, low: float, high: float, *, open_low: bool = False) -> None:
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    if ok:
-        ok = (low < value if open_low else low <= value) and value <= high
-    if not ok:
-        bracket = "(" if open_low else "["
-        raise ConfigError(f"must be a number in {bracket}{low:g}, {high:g}], got {value!r}", key=key)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -72,14 +62,11 @@ class TabularQSettings:
     initial_value: float = 0.0
 
     def __post_init__(self) -> None:
-        _require_number(self.discount, "discount", 0.0, 1.0)
-        _require_number(self.step_size, "step_size", 0.0, 1.0, open_low=True)
-        _require_number(self.explore_start, "explore_start", 0.0, 1.0)
-        _require_number(self.explore_end, "explore_end", 0.0, 1.0)
-        steps = self.explore_decay_steps
-        if isinstance(steps, bool) or not isinstance(steps, int) or steps < 1:
-            raise ConfigError(f"must be a positive integer, got {steps!r}", key="explore_decay_steps")
-        _require_number(self.initial_value, "initial_value", -math.inf, math.inf)
+        for name in ("discount", "explore_start", "explore_end"):
+            check_number(getattr(self, name), name, low=0, high=1)
+        check_number(self.step_size, "step_size", low=0, high=1, open_low=True)
+        check_number(self.explore_decay_steps, "explore_decay_steps", low=1, integer=True)
+        check_number(self.initial_value, "initial_value")
 
     def epsilon(self, step: int) -> float:
         """Exploration probability at environment step ``step`` (linear schedule, then flat).
