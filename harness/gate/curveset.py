@@ -16,8 +16,9 @@ from typing import Any
 import numpy as np
 
 from harness.store.baseline import Baseline, SeedCurve
+from harness.store.results import ResultSet
 from harness.core.errors import ResultsError, RunFailedError
-from harness.core.spec import EvaluationPlan, TaskSpec
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 
 __all__ = ["CurveSet", "last_line", "random_policy_return", "task_threshold"]
 
@@ -68,9 +69,9 @@ class CurveSet:
         )
 
     @classmethod
-    def from_results(cls, results: Any, *, label: str, config: Mapping[str, Any] | None = None,
+    def from_results(cls, results: ResultSet, *, label: str, config: Mapping[str, Any] | None = None,
                      expected: int | None = None) -> CurveSet:
-        """From a ``harness.store.results.ResultSet``; every seed must have completed.
+        """From a result set; every seed must have completed.
 
         Parameters
         ----------
@@ -129,7 +130,7 @@ class CurveSet:
         return np.stack([r.curve.means for r in self.runs])
 
 
-def _config_of_specs(specs: Sequence[Any]) -> dict:
+def _config_of_specs(specs: Sequence[RunSpec]) -> dict[str, Any]:
     first = specs[0].to_json()
     return {
         "task": first["task"],

@@ -22,7 +22,7 @@ import os
 import platform
 from collections.abc import Mapping
 from pathlib import Path
-from typing import Any
+from typing import Any, Protocol, runtime_checkable
 
 from harness import __version__
 from harness.core.atomic import atomic_write_text
@@ -30,10 +30,12 @@ from harness.core.curves import LearningCurve
 from harness.core.errors import BaselineError
 from harness.core.seeding import RunSeed
 from harness.core.spec import sha256_of
+from harness.store.results import ResultSet
 
 __all__ = [
     "BASELINE_SCHEMA",
     "Baseline",
+    "RecordedManifest",
     "SeedCurve",
     "baseline_from_results",
     "check_overwrite",
@@ -126,8 +128,26 @@ def _host_platform() -> dict[str, str]:
     }
 
 
+@runtime_checkable
+class RecordedManifest(Protocol):
+    """What a baseline reads of its manifest: ``harness.manifest.loader.Manifest`` is one (the store
+    layer does not import the manifest layer, which sits beside it)."""
+
+    @property
+    def name(self) -> str: ...
+
+    @property
+    def config_hash(self) -> str: ...
+
+    @property
+    def seeds(self) -> tuple[RunSeed, ...]: ...
+
+    def resolved_config(self) -> dict[str, Any]: ...
+
+
 def baseline_from_results(
-    manifest: Any, results: Any, *, recorded: str | None = None, recording: Mapping[str, str] | None = None
+    manifest: RecordedManifest, results: ResultSet, *, recorded: str | None = None,
+    recording: Mapping[str, str] | None = None,
 ) -> Baseline:
     """Build a baseline from a manifest and its complete result set.
 
