@@ -184,3 +184,27 @@ def test_interrupted_run_leaves_no_process_and_a_rerun_trains_only_the_unfinishe
     assert code == 0
     index = json.loads((results / "index.json").read_text())
     assert [r["source"] for r in index["runs"]] == ["resumed", "trained", "trained"]
+
+
+def test_a_worker_stopped_between_checkpoints_still_stops_its_program(tmp_path):
+    """A stop that arrives outside the trainer's own code (here: while a checkpoint is being
+    reported) is a BaseException; the worker closes the trainer, whose cleanup stops the program."""
+    from harness.execute import Task
+    from harness.execute.work import run_task
+
+    manifest = load_manifest(write_manifest(tmp_path / "m", extra=["--index", "1"], seeds=[1]))
+    (tmp_path / "m" / "slow").write_text("0.5")
+
+    def stop_here(*checkpoint):
+        raise KeyboardInterrupt("the worker is being stopped")
+
+    payload = Task(manifest.runs(), None, str(tmp_path / "m"), str(tmp_path / "r")).payload()
+    try:
+        run_task(payload, stop_here)
+    except KeyboardInterrupt as exc:
+        held = exc  # a worker on its way out keeps the frames, and so the trainer, alive like this
+    else:
+        pytest.fail("the stop did not reach the caller")
+    pids = pids_of(tmp_path / "r")
+    assert len(pids) == 2 and not any(alive(pid) for pid in pids)
+    assert held.__traceback__ is not None

@@ -115,12 +115,13 @@ def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None,
     except Exception:
         reason = traceback.format_exc()
         failures = [f if f is not None else reason for f in failures]
+    finally:  # also when the worker is being stopped (a BaseException): the trainer's cleanup runs now
+        close = getattr(it, "close", None) if it is not None else None
+        if close is not None:
+            close()
     for k, spec in enumerate(specs):
         if failures[k] is None and len(curves[k]) != len(plan):
             failures[k] = f"trainer stopped after {len(curves[k])} of {len(plan)} checkpoints (plan {list(plan)})"
-    close = getattr(it, "close", None) if it is not None else None
-    if close is not None:
-        close()
     return curves, failures
 
 
