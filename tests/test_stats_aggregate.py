@@ -14,7 +14,7 @@ from harness.stats import (
 
 
 def test_iqm_values():
-    # Agarwal et al. (2021): IQM is the 25% trimmed mean; CHECK-VALUES.md [recomputed]:
+    # Agarwal et al. (2021): IQM is the 25% trimmed mean; tests/CHECK-VALUES.md [recomputed]:
     # trim_mean(1..10, 0.25) = 5.5; trim_mean([1, 2, 3, 4, 100], 0.25) = 3.0.
     assert iqm(range(1, 11)) == pytest.approx(5.5)
     assert iqm([1, 2, 3, 4, 100]) == pytest.approx(3.0)
@@ -23,7 +23,7 @@ def test_iqm_values():
 
 
 def test_probability_of_improvement_values():
-    # Agarwal et al. (2021), ties count one half; CHECK-VALUES.md: [1, 2, 3] vs [2, 2, 4] -> 1/3.
+    # Agarwal et al. (2021), ties count one half; tests/CHECK-VALUES.md: [1, 2, 3] vs [2, 2, 4] -> 1/3.
     assert probability_of_improvement([1, 2, 3], [2, 2, 4]) == pytest.approx(1 / 3)
     assert probability_of_improvement([2, 2, 4], [1, 2, 3]) == pytest.approx(2 / 3)
 

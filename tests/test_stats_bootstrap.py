@@ -21,7 +21,7 @@ def plug_in_variance(x, axis=-1):
 
 def test_efron_tibshirani_table_14_2_bca():
     # Efron & Tibshirani (1993) Table 14.2 [published]: theta_hat = 171.534, 90% BCa (115.8, 259.6).
-    # The jackknife acceleration is deterministic: a_hat = 0.061240 [recomputed, CHECK-VALUES.md];
+    # The jackknife acceleration is deterministic: a_hat = 0.061240 [recomputed, tests/CHECK-VALUES.md];
     # Martinez & Martinez, Computational Statistics Handbook with MATLAB, Example 7.8: z0 = 0.16
     # [published]; z0 is Monte Carlo (theirs from fewer resamples), so the check is loose.
     r = bootstrap_ci(ET_A, plug_in_variance, confidence_level=0.90, n_resamples=100_000, rng=20261201)

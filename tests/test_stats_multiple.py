@@ -14,7 +14,7 @@ BH_PVALUES = [0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.
 
 
 def test_holm_textbook_example():
-    # Holm (1979) step-down, standard worked example (CHECK-VALUES.md): p = (0.01, 0.03, 0.04, 0.005)
+    # Holm (1979) step-down, standard worked example (tests/CHECK-VALUES.md): p = (0.01, 0.03, 0.04, 0.005)
     # at 0.05 rejects H1 and H4 only; adjusted p = (0.03, 0.06, 0.06, 0.02).
     r = holm([0.01, 0.03, 0.04, 0.005], alpha=0.05)
     assert r.adjusted == pytest.approx((0.03, 0.06, 0.06, 0.02))
@@ -71,7 +71,7 @@ def test_max_statistic_finds_where_curves_differ():
 
 def test_max_statistic_exact_enumeration_at_tiny_n():
     # With 3 vs 3 seeds there are C(6, 3) = 20 relabellings; p-values are multiples of 1/20 and the
-    # smallest two-sided one is 2/20 = 0.1 (the same bound as Mann–Whitney, CHECK-VALUES.md).
+    # smallest two-sided one is 2/20 = 0.1 (the same bound as Mann–Whitney, tests/CHECK-VALUES.md).
     a = np.array([[10.0, 1.0], [11.0, 2.0], [12.0, 3.0]])
     b = np.array([[0.0, 1.5], [1.0, 2.5], [2.0, 1.0]])
     r = max_statistic_test(a, b, n_resamples=9999, rng=0)

@@ -13,7 +13,7 @@ from harness.stats import minimum_detectable_difference, power_of, seeds_needed
     ("d", "power", "table", "noncentral"),
     [
         # Cohen (1988) Table 2.4.1 / Cohen (1992) Table 2, two-sided alpha = 0.05 [published];
-        # exact noncentral-t solutions [recomputed] in CHECK-VALUES.md.
+        # exact noncentral-t solutions [recomputed] in tests/CHECK-VALUES.md.
         (0.2, 0.80, 393, 393.41),
         (0.5, 0.80, 64, 63.77),
         (0.8, 0.80, 26, 25.52),
@@ -31,12 +31,12 @@ def test_seeds_needed_matches_cohen(d, power, table, noncentral):
 
 @pytest.mark.parametrize(("d", "expected"), [(0.5, 0.108), (0.8, 0.201), (1.0, 0.286)])
 def test_power_with_five_seeds(d, expected):
-    # CHECK-VALUES.md [recomputed]: power with 5 seeds per group at alpha 0.05.
+    # tests/CHECK-VALUES.md [recomputed]: power with 5 seeds per group at alpha 0.05.
     assert power_of(d, 1.0, 5, 1.0, 5) == pytest.approx(expected, abs=5e-4)
 
 
 def test_minimum_detectable_difference_with_ten_seeds():
-    # CHECK-VALUES.md [recomputed]: minimum detectable d with 10 seeds per group at power 0.8: 1.325.
+    # tests/CHECK-VALUES.md [recomputed]: minimum detectable d with 10 seeds per group at power 0.8: 1.325.
     mdd = minimum_detectable_difference(1.0, 10, 1.0, 10, alpha=0.05, power=0.8)
     assert mdd == pytest.approx(1.325, abs=5e-4)
     assert power_of(mdd, 1.0, 10, 1.0, 10) == pytest.approx(0.8, abs=1e-9)

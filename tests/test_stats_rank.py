@@ -16,7 +16,7 @@ MICE_CONTROL = [52, 104, 146, 10, 51, 30, 40, 27, 46]
 
 
 def test_exact_smallest_pvalues_at_tiny_n():
-    # CHECK-VALUES.md [recomputed]: with 3 vs 3 seeds the smallest two-sided Mann–Whitney p is 0.1
+    # tests/CHECK-VALUES.md [recomputed]: with 3 vs 3 seeds the smallest two-sided Mann–Whitney p is 0.1
     # (2 / C(6, 3)); 5 vs 5: 0.0079 (2 / C(10, 5)).
     r3 = mann_whitney([1, 2, 3], [4, 5, 6])
     assert r3.pvalue == pytest.approx(0.1) and r3.statistic == 0.0
@@ -27,7 +27,7 @@ def test_exact_smallest_pvalues_at_tiny_n():
 
 def test_estimate_is_the_probability_of_superiority():
     # U / (n_a n_b) = P(A > B) + P(A = B)/2 (Mann & Whitney 1947; Agarwal et al. 2021's
-    # probability of improvement): x = [1, 2, 3] vs y = [2, 2, 4] gives 1/3 (CHECK-VALUES.md).
+    # probability of improvement): x = [1, 2, 3] vs y = [2, 2, 4] gives 1/3 (tests/CHECK-VALUES.md).
     r = mann_whitney([1, 2, 3], [2, 2, 4])
     assert r.estimate == pytest.approx(1 / 3)
     assert "normal approximation" in r.method  # ties: scipy's 'auto' does not use the exact law

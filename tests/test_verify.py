@@ -22,7 +22,7 @@ from harness.store.results import ResultSet, RunRecord
 from harness.gate.verify import decide, verify_sets
 
 # NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.3, AUTO83B data (published raw data;
-# see /work/shared/CHECK-VALUES.md): miles per gallon of US and Japanese cars.
+# see tests/CHECK-VALUES.md): miles per gallon of US and Japanese cars.
 US = [18, 15, 18, 16, 17, 15, 14, 14, 14, 15, 15, 14, 15, 14, 22, 18, 21, 21, 10, 10, 11, 9, 28, 25, 19, 16, 17, 19,
       18, 14, 14, 14, 14, 12, 13, 13, 18, 22, 19, 18, 23, 26, 25, 20, 21, 13, 14, 15, 14, 17, 11, 13, 12, 13, 15, 13,
       13, 14, 22, 28, 13, 14, 13, 14, 15, 12, 13, 13, 14, 13, 12, 13, 18, 16, 18, 18, 23, 11, 12, 13, 12, 18, 21, 19,
@@ -36,7 +36,7 @@ JP = [24, 27, 27, 25, 31, 35, 24, 19, 28, 23, 27, 20, 22, 18, 20, 31, 32, 31, 32
       19, 32, 34, 26, 30, 22, 22, 33, 39, 36, 28, 27, 21, 24, 30, 34, 32, 38, 37, 30, 31, 37, 32, 47, 41, 45, 34, 33,
       24, 32, 39, 35, 32, 37, 38, 34, 34, 32, 33, 32, 25, 24, 37, 31, 36, 36, 34, 38, 32, 38, 32]
 NIST_MEAN_US, NIST_MEAN_JP, NIST_SD_JP = 20.14458, 30.48101, 6.10771  # published summary
-WELCH_T, WELCH_DF, WELCH_P_TWO_SIDED = -12.946273, 136.87498, 1.5709e-25  # recomputed (CHECK-VALUES.md)
+WELCH_T, WELCH_DF, WELCH_P_TWO_SIDED = -12.946273, 136.87498, 1.5709e-25  # recomputed (tests/CHECK-VALUES.md)
 
 POLICY = GatePolicy(metrics=("final",), margin=1.0)
 
