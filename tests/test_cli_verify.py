@@ -70,6 +70,24 @@ def train(run):
 train.settings_type = TabularQSettings
 '''
 
+NONDETERMINISTIC = '''
+"""The built-in tabular trainer with unseeded noise of 1e-9 on every return: nondeterministic on purpose."""
+import numpy as np
+
+from harness.core.curves import Checkpoint
+from harness.trainers.tabular import TabularQSettings
+from harness.trainers.tabular import train as tabular_train
+
+
+def train(run):
+    noise = np.random.default_rng()  # no seed: every run differs in the last digits
+    for point in tabular_train(run):
+        yield Checkpoint(point.step, tuple(r + noise.uniform(0.0, 1e-9) for r in point.returns))
+
+
+train.settings_type = TabularQSettings
+'''
+
 
 def manifest_text(name: str, *, use: str = "tabular-q", step_size: float = 0.1, every: int = 5000,
                   extra: str = "") -> str:
@@ -107,6 +125,7 @@ def project(tmp_path_factory):
     (root / "toy.toml").write_text(manifest_text("toy"))
     (root / "broken_rule.py").write_text(BROKEN_RULE)
     (root / "flaky.py").write_text(FLAKY)
+    (root / "nondeterministic.py").write_text(NONDETERMINISTIC)
     with pytest.MonkeyPatch.context() as mp:
         mp.chdir(root)
         mp.setenv("RLHARNESS_CACHE_DIR", str(root / "cache"))
@@ -295,3 +314,22 @@ def test_compare_two_stored_result_sets(at):
     assert code == ExitCode.BAD_INPUT and "[alpha]: must be a number strictly between 0 and 0.5, got 0.9" in out
     code, out = cli(at, "compare", "results/toy", "results/nowhere")
     assert code == ExitCode.BAD_INPUT and "results/nowhere/index.json: file not found" in out
+
+
+def test_nondeterministic_trainer_fails_the_gate(at):
+    # Record and rerun the same code, configuration and versions: curves must be bitwise identical.
+    (at / "nondet.toml").write_text(manifest_text("nondet", use="nondeterministic:train"))
+    code, out = cli(at, "record", "nondet.toml", "--workers", "2", "--results", "results/nondet", "--overwrite")
+    assert code == ExitCode.OK, out
+    code, out = cli(at, "verify", "nondet.toml", "--workers", "2", "--fresh", "--results", "results/nondet",
+                    "--junit", "out/nondet.xml")
+    assert code == ExitCode.GATE_FAILED, out
+    assert "config hash equal; same installed versions" in out
+    assert "nondeterminism" in out and "reproducibility failure" in out
+    suite = ET.parse(at / "out/nondet.xml").getroot()
+    assert [c.get("name") for c in suite.iter("testcase") if c.find("failure") is not None] == ["exact"]
+    (at / "relaxed.toml").write_text(manifest_text("nondet", use="nondeterministic:train",
+                                                   extra="[check]\nallow_nondeterminism = true\n"))
+    code, out = cli(at, "verify", "relaxed.toml", "--workers", "2", "--fresh", "--results", "results/nondet")
+    assert code == ExitCode.OK, out
+    assert "nondeterminism" in out and "allowed by the policy" in out

@@ -148,3 +148,28 @@ def test_plot_refuses_unknown_format(verdicts, tmp_path):
     failed, _ = verdicts
     with pytest.raises(ValueError, match=r"`path` must end in .png or .svg, got '.*c.pdf'"):
         plot_curves(failed.baseline_set, failed.candidate_set, tmp_path / "c.pdf")
+
+
+def test_nondeterminism_is_shown_in_every_report():
+    # Same config, versions and trainer source; one seed's curve differs by one ulp.
+    rng = np.random.default_rng(np.random.SeedSequence(6))
+    base = rng.normal(100.0, 3.0, size=(6, 3))
+    noisy = base.copy()
+    noisy[1, 2] = np.nextafter(noisy[1, 2], np.inf)
+    versions = {"numpy": "2.1", "trainer_source": "sha256:t"}
+    verdict = verify_sets(_set(base, "baseline B", versions), _set(noisy, "candidate C", versions),
+                          GatePolicy(metrics=("final",), margin=5.0))
+    assert not verdict.passed
+    console = Console(file=StringIO(), width=200, record=True, color_system=None)
+    console.print(VerdictReport(verdict))
+    text = console.export_text()
+    assert "FAILED" in text and "nondeterminism" in text and "reproducibility failure" in text
+    md = render_markdown(verdict)
+    assert md.startswith("## ❌") and "reproducibility failure" in md
+    data = verdict_json(verdict)
+    assert data["passed"] is False and data["exact"]["nondeterministic"] is True
+    assert data["gate"]["failing"] == ["exact"]
+    suite = ET.fromstring(render_junit(verdict))
+    exact = next(c for c in suite.iter("testcase") if c.get("name") == "exact")
+    assert exact.find("failure") is not None and "nondeterminism" in exact.find("failure").get("message")
+    assert suite.get("failures") == "1"

@@ -18,6 +18,7 @@ from harness.core.errors import BaselineError, ResultsError, RunFailedError
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.core.seeding import plan_seeds
 from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
+from harness.store.results import TRAINER_SOURCE
 from harness.store.results import ResultSet, RunRecord
 from harness.gate.verify import decide, verify_sets
 
@@ -161,6 +162,53 @@ def test_exact_check_names_first_differing_seed_and_checkpoint():
     differs = verify_sets(curve_set(matrix), curve_set(changed), POLICY).exact
     assert (differs.status, differs.seed, differs.step) == ("differs", "1/2", 100)
     assert differs.baseline_returns == (7.0,) and differs.candidate_returns != (7.0,)
+
+
+def _unexplained_pair(*, candidate_source="sha256:trainer-a"):
+    """Same config and versions; the candidate's curve differs by one ulp at seed 1/2, step 100."""
+    matrix = np.arange(12, dtype=float).reshape(4, 3)
+    changed = matrix.copy()
+    changed[2, 1] = np.nextafter(changed[2, 1], np.inf)
+    base = curve_set(matrix, versions={"numpy": "2.1.0", TRAINER_SOURCE: "sha256:trainer-a"})
+    return base, curve_set(changed, versions={"numpy": "2.1.0", TRAINER_SOURCE: candidate_source})
+
+
+def test_nondeterminism_fails_the_gate_by_default():
+    # Configuration, installed versions and trainer source all unchanged: the curves must be
+    # bitwise identical, and one ulp of difference is a reproducibility failure even though no
+    # statistical check finds the candidate worse.
+    base, cand = _unexplained_pair()
+    verdict = verify_sets(base, cand, POLICY)
+    assert verdict.checks[0].verdict != "worse"
+    assert (verdict.exact.status, verdict.exact.seed, verdict.exact.step) == ("differs", "1/2", 100)
+    assert verdict.exact.nondeterministic
+    assert "nondeterminism" in verdict.exact.reading and "reproducibility failure" in verdict.exact.reading
+    assert not verdict.passed and verdict.gate.failing == ("exact",)
+    assert "allow_nondeterminism" in verdict.gate.reasons[0]
+
+
+def test_nondeterminism_can_be_allowed_by_the_policy():
+    base, cand = _unexplained_pair()
+    verdict = verify_sets(base, cand, dataclasses.replace(POLICY, allow_nondeterminism=True))
+    assert verdict.exact.nondeterministic and verdict.passed
+    assert any("allowed by the policy" in r for r in verdict.gate.reasons)
+
+
+def test_a_changed_source_explains_a_difference():
+    base, cand = _unexplained_pair(candidate_source="sha256:trainer-b")
+    verdict = verify_sets(base, cand, POLICY)
+    assert verdict.exact.status == "differs" and not verdict.exact.nondeterministic
+    assert "the trainer's source changed" in verdict.exact.reading
+    assert "nondeterminism" not in verdict.exact.reading
+    assert verdict.passed
+
+
+def test_an_unrecorded_source_is_not_called_nondeterminism():
+    # Without a source fingerprint on both sides "unchanged" cannot be established.
+    base, cand = _unexplained_pair()
+    cand = dataclasses.replace(cand, versions={"numpy": "2.1.0"})
+    verdict = verify_sets(base, cand, POLICY)
+    assert verdict.exact.status == "differs" and not verdict.exact.nondeterministic and verdict.passed
 
 
 def test_version_drift_skips_exact_check_but_not_statistics():

@@ -6,17 +6,20 @@ Layers, each reported:
    differ; which installed versions differ between the runs (drift).
 2. **Exact check** — when config and versions match, every seed's curve must be
    bitwise identical; a mismatch names the first seed and checkpoint that
-   differ (a numerics change or nondeterminism). Skipped, and said why,
-   otherwise: with other library versions the statistics decide.
+   differ. If the trainer's source changed too, that is a numerics change and
+   the statistics decide; if it did not, it is nondeterminism, a
+   reproducibility failure that fails the gate unless the policy allows it
+   (``allow_nondeterminism``). Skipped, and said why, otherwise: with other
+   library versions the statistics decide.
 3. **Statistical checks** per metric and per published reference, Holm-corrected
    (see :mod:`harness.gate.compare`).
 4. **Where the curves part** — the first checkpoint range where the candidate is
    significantly below (family-wise error controlled).
 
 The **gate** is a policy over those verdicts (:class:`harness.manifest.policy.GatePolicy`):
-it fails when a check is significantly worse (unless ``ignore_small`` and the
-difference lies inside the margin) and, in ``strict`` mode, when one is
-inconclusive.
+it fails on nondeterminism (unless ``allow_nondeterminism``), when a check is
+significantly worse (unless ``ignore_small`` and the difference lies inside the
+margin) and, in ``strict`` mode, when one is inconclusive.
 """
 
 from __future__ import annotations
@@ -121,7 +124,10 @@ class ExactCheck:
 
     ``status`` is ``"identical"``, ``"differs"`` or ``"skipped"``; ``reason`` says why it was
     skipped; on a difference ``seed``/``step`` name the first seed (manifest order) and
-    checkpoint that differ, with both sides' evaluation returns there.
+    checkpoint that differ, with both sides' evaluation returns there, and ``cause`` says
+    what explains it: ``"source changed"`` (a numerics change), ``"source unknown"`` (no
+    source fingerprint on one side) or ``"nondeterminism"`` (configuration, installed
+    versions and trainer source all unchanged: a reproducibility failure).
     """
 
     status: str
@@ -130,6 +136,12 @@ class ExactCheck:
     step: int | None = None
     baseline_returns: tuple[float, ...] | None = None
     candidate_returns: tuple[float, ...] | None = None
+    cause: str | None = None
+
+    @property
+    def nondeterministic(self) -> bool:
+        """The curves differ although nothing that could explain it changed."""
+        return self.status == "differs" and self.cause == "nondeterminism"
 
     @property
     def reading(self) -> str:
@@ -137,8 +149,15 @@ class ExactCheck:
             return "every seed's curve is bitwise identical to the baseline."
         if self.status == "skipped":
             return f"exact check skipped: {self.reason}."
-        return (f"curves are not bitwise identical: first difference at seed {self.seed}, checkpoint step "
-                f"{self.step} — a numerics change or nondeterminism.")
+        where = f"first difference at seed {self.seed}, checkpoint step {self.step}"
+        if self.nondeterministic:
+            return ("curves are not bitwise identical although the configuration, the installed versions and the "
+                    f"trainer's source are unchanged: {where} — nondeterminism, a reproducibility failure.")
+        if self.cause == "source changed":
+            return (f"curves are not bitwise identical: {where} — the trainer's source changed since the baseline, "
+                    "so its numerics did; the statistical checks decide.")
+        return (f"curves are not bitwise identical: {where} — the trainer's source is not fingerprinted on both "
+                "sides, so a numerics change cannot be told from nondeterminism; the statistical checks decide.")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -176,8 +195,9 @@ class Verdict:
         counts = {v: sum(c.verdict == v for c in self.checks) for v in ("equivalent", "better", "worse", "inconclusive")}
         listed = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
         exact = {"identical": "; curves bitwise identical", "differs": "; curves not bitwise identical"}
+        note = " (nondeterminism)" if self.exact.nondeterministic else ""
         return (f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {listed or 'no checks'}"
-                f"{exact.get(self.exact.status, '')}.")
+                f"{exact.get(self.exact.status, '')}{note}.")
 
     def explain(self) -> str:
         """A plain-text explanation: the summary, each layer's reading and the gate's reasons."""
@@ -228,6 +248,12 @@ def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance
     if prov.drift:
         names = ", ".join(f"{d.name} {d.baseline} -> {d.candidate}" for d in prov.drift)
         return ExactCheck("skipped", f"installed versions differ ({names}); the statistical checks decide")
+    if prov.source_changed:
+        cause = "source changed"
+    elif TRAINER_SOURCE not in baseline.versions or TRAINER_SOURCE not in candidate.versions:
+        cause = "source unknown"
+    else:
+        cause = "nondeterminism"
     base = {r.seed: r.curve for r in baseline.runs}
     for run in candidate.runs:
         old = base.get(run.seed)
@@ -235,13 +261,24 @@ def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance
             return ExactCheck("skipped", f"seed {run.seed.label} is not in the baseline")
         for a, b in zip(old.checkpoints, run.curve.checkpoints, strict=True):
             if a.step != b.step or np.asarray(a.returns).tobytes() != np.asarray(b.returns).tobytes():
-                return ExactCheck("differs", "", run.seed.label, b.step, a.returns, b.returns)
+                return ExactCheck("differs", "", run.seed.label, b.step, a.returns, b.returns, cause)
     return ExactCheck("identical", "")
 
 
-def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
-    """Apply the gate policy to the statistical verdicts."""
-    reasons, failing = [], []
+def decide(checks: Sequence[MetricCheck], policy: GatePolicy, exact: ExactCheck | None = None) -> GateDecision:
+    """Apply the gate policy to the exact check and the statistical verdicts."""
+    reasons, failing, notes = [], [], []
+    if exact is not None and exact.nondeterministic:
+        if policy.allow_nondeterminism:
+            notes.append("nondeterminism allowed by the policy (allow_nondeterminism = true): the statistical "
+                         "checks decide alone")
+        else:
+            reasons.append(
+                f"the curves are not bitwise identical (first at seed {exact.seed}, step {exact.step}) although "
+                "configuration, installed versions and trainer source are unchanged: a reproducibility failure; "
+                "make training deterministic, or set allow_nondeterminism = true in [check] to let the "
+                "statistical checks decide")
+            failing.append("exact")
     for c in checks:
         if c.verdict == "worse" and not (policy.ignore_small and c.within_margin):
             reasons.append(f"{c.title} is significantly worse ({c.estimate:+.4g}, Holm-adjusted p = {c.pvalue:.3g})")
@@ -252,8 +289,8 @@ def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
     if not reasons:
         ignored = [c.name for c in checks if c.verdict == "worse"]
         note = f" (significant but within the margin, ignored by policy: {', '.join(ignored)})" if ignored else ""
-        return GateDecision(True, (f"no check is significantly worse{note}",))
-    return GateDecision(False, tuple(reasons), tuple(failing))
+        return GateDecision(True, (f"no check is significantly worse{note}", *notes))
+    return GateDecision(False, (*reasons, *notes), tuple(failing))
 
 
 def verify_sets(
@@ -272,7 +309,7 @@ def verify_sets(
                                                 floor=floor, threshold=threshold)
     return Verdict(
         manifest=candidate.manifest, provenance=prov, exact=exact, checks=stats.checks,
-        divergence=stats.divergence, gate=decide(stats.checks, policy), policy=policy,
+        divergence=stats.divergence, gate=decide(stats.checks, policy, exact), policy=policy,
         floor=floor, threshold=policy.threshold if policy.threshold is not None else threshold,
         baseline_set=baseline, candidate_set=candidate,
     )

@@ -103,6 +103,10 @@ class GatePolicy:
         Power at which the minimum detectable difference and the seeds needed are given.
     bitwise
         Run the exact check when config and pins match.
+    allow_nondeterminism
+        Do not fail when the curves are not bitwise identical although the configuration, the
+        installed versions and the trainer's source are all unchanged (a reproducibility failure
+        by default); the statistical checks then decide alone.
     locate
         Look for the first checkpoint range where the candidate falls significantly below.
     permutations
@@ -121,6 +125,7 @@ class GatePolicy:
     final_share: float = 0.1
     power: float = 0.8
     bitwise: bool = True
+    allow_nondeterminism: bool = False
     locate: bool = True
     permutations: int = 2000
 
@@ -148,7 +153,7 @@ class GatePolicy:
                 raise ConfigError(f"unknown metric {name!r}.{did_you_mean(str(name), KNOWN_METRICS)}", key="margins")
             _require_optional_finite(value, f"margins.{name}", positive=True)
         object.__setattr__(self, "margins", dict(self.margins))
-        for key in ("ignore_small", "strict", "bitwise", "locate"):
+        for key in ("ignore_small", "strict", "bitwise", "allow_nondeterminism", "locate"):
             if not isinstance(getattr(self, key), bool):
                 raise ConfigError(f"must be true or false, got {getattr(self, key)!r}", key=key)
         _require_fraction(self.final_share, "final_share", upper=1.0 + 1e-12)

@@ -89,4 +89,6 @@ def policy_line(verdict: Verdict) -> str:
     if p.ignore_small:
         parts.append("significant differences inside the margin ignored")
     parts.append("strict: inconclusive fails" if p.strict else "inconclusive does not fail")
+    if p.bitwise:
+        parts.append("nondeterminism allowed" if p.allow_nondeterminism else "nondeterminism fails")
     return "; ".join(parts)

@@ -41,7 +41,7 @@ def verdict_json(verdict: Verdict) -> dict:
         "passed": v.passed,
         "summary": v.summary,
         "what_a_pass_means": WHAT_A_PASS_MEANS,
-        "gate": {"passed": v.gate.passed, "reasons": list(v.gate.reasons)},
+        "gate": {"passed": v.gate.passed, "reasons": list(v.gate.reasons), "failing": list(v.gate.failing)},
         "policy": v.policy.to_json(),
         "floor": v.floor,
         "threshold": v.threshold,
@@ -56,7 +56,7 @@ def verdict_json(verdict: Verdict) -> dict:
             "trainer_source_changed": prov.source_changed,
             "reading": prov.reading,
         },
-        "exact": {**exact, "reading": v.exact.reading},
+        "exact": {**exact, "nondeterministic": v.exact.nondeterministic, "reading": v.exact.reading},
         "checks": [_check(c) for c in v.checks],
         "divergence": None if v.divergence is None else {
             **dataclasses.asdict(v.divergence), "reading": v.divergence.reading},

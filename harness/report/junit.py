@@ -1,7 +1,8 @@
 """The JUnit XML report of a verdict: one test case per check, so CI systems show it natively.
 
 Test cases: ``provenance``, ``exact``, one per statistical check and ``divergence``.
-A check that makes the gate fail is a ``<failure>``; an inconclusive check that
+A check that makes the gate fail (nondeterminism in ``exact``, a significantly
+worse metric) is a ``<failure>``; an inconclusive check that
 does not (non-strict policy) and a skipped exact check are ``<skipped>``; every
 case carries its one-sentence reading in ``<system-out>``.
 """
@@ -21,8 +22,9 @@ def render_junit(verdict: Verdict) -> str:
     suite = ET.Element("testsuite", name=f"rlharness.verify.{v.manifest}")
     cases: list[tuple[str, str, str | None, str | None]] = []  # name, reading, failure, skipped
     cases.append(("provenance", v.provenance.reading, None, None))
-    cases.append(("exact", v.exact.reading, None, v.exact.reason if v.exact.status == "skipped" else None))
     failing = set(v.gate.failing)
+    cases.append(("exact", v.exact.reading, v.exact.reading if "exact" in failing else None,
+                  v.exact.reason if v.exact.status == "skipped" else None))
     for c in v.checks:
         failure = c.reading if c.name in failing else None
         skipped = "inconclusive: " + c.reading if failure is None and c.verdict == "inconclusive" else None

@@ -48,7 +48,8 @@ class VerdictReport:
             parts.append(_two_sided_table("changed configuration keys", ("key", "baseline", "candidate"), config_rows(v)))
         if v.provenance.drift:
             parts.append(_two_sided_table("version drift", ("component", "baseline", "candidate"), drift_rows(v)))
-        exact_style = {"identical": "green", "differs": "bold yellow"}.get(v.exact.status, "dim")
+        exact_style = ("bold red" if v.exact.nondeterministic else
+                       {"identical": "green", "differs": "bold yellow"}.get(v.exact.status, "dim"))
         parts.append(Text.assemble("2. exact check: ", (v.exact.reading, exact_style)))
         if v.exact.status == "differs":
             parts.append(Text(f"   baseline returns  {list(v.exact.baseline_returns)}\n"
