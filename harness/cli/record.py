@@ -55,7 +55,10 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     commit = _program_commit(manifest)
     if commit is not None:  # information only: the trainer's fingerprint is its files' content
         recording["program_git_commit"] = commit
-    baseline = baseline_from_results(manifest, results, recording=recording)
+    from harness.store.history import recorder_name
+
+    baseline = baseline_from_results(manifest, results, recording=recording,
+                                     recorder=args.recorder or recorder_name())
     written = write_baseline(baseline, path, overwrite=args.overwrite)
     console.print(
         f"recorded baseline {written}: {len(baseline.runs)} seeds, {manifest.config_hash}, checksum "
@@ -73,5 +76,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
     parser.add_argument("--output", metavar="FILE", help="baseline file (default: <baselines>/<name>.json)")
     parser.add_argument("--overwrite", action="store_true", help="replace an existing baseline")
+    parser.add_argument("--recorder", metavar="NAME",
+                        help="who records it, stored in the baseline (default: git config user.name, else the login name)")
     add_run_arguments(parser)
     parser.set_defaults(handler=_handle)

@@ -156,6 +156,11 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)
     path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
+    history = None
+    if args.baseline_ref:
+        from harness.store.history import baseline_history
+
+        history = baseline_history(path, args.baseline_ref)
     baseline = baseline_for(manifest, path, required=bool(args.baseline))
     if baseline is None:
         console.print(f"no baseline at {path}: checking against the manifest's published references only",
@@ -163,7 +168,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     try:
         results, folder = obtain_results(args, manifest, console)
         verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy,
-                                  candidate_label=f"rerun of {manifest.name} (results in {folder})")
+                                  candidate_label=f"rerun of {manifest.name} (results in {folder})", history=history)
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED
@@ -181,6 +186,9 @@ def register(subparsers: Any) -> None:
     )
     parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
     parser.add_argument("--baseline", metavar="FILE", help="the baseline file (default: <baselines>/<name>.json)")
+    parser.add_argument("--baseline-ref", metavar="REF",
+                        help="git ref (branch, tag, commit; in a pull request the merge base) to compare the baseline "
+                             "file with: a re-recorded, new or removed baseline is said first in every report")
     add_run_arguments(parser)
     add_policy_arguments(parser)
     add_report_arguments(parser)

@@ -26,6 +26,7 @@ __all__ = [
     "STREAM_NAMES",
     "RunSeed",
     "RunStreams",
+    "describe_seed_change",
     "episode_action_rng",
     "episode_seeds",
     "plan_seeds",
@@ -114,6 +115,42 @@ def plan_seeds(
         raise ValueError("`root` is required with `count`")
     r = validate_seed(root, name="root")
     return tuple(RunSeed(r, (i,)) for i in range(n))
+
+
+def _root(seeds: Sequence[RunSeed]) -> int | None:
+    """The root when ``seeds`` are exactly the children ``0..n-1`` of one root, else ``None``."""
+    if seeds and all(s.entropy == seeds[0].entropy and s.spawn_key == (i,) for i, s in enumerate(seeds)):
+        return seeds[0].entropy
+    return None
+
+
+def _origin(seeds: Sequence[RunSeed]) -> str:
+    root = _root(seeds)
+    if root is not None:
+        return f"root {root}"
+    labels = [s.label for s in seeds]
+    return "seeds " + ", ".join(labels[:4]) + (", ..." if len(labels) > 4 else "")
+
+
+def describe_seed_change(old: Sequence[RunSeed], new: Sequence[RunSeed]) -> str:
+    """A seed change in a few words, for reports: where each side's seeds come from, how many, how many shared.
+
+    Examples
+    --------
+    >>> describe_seed_change(plan_seeds(count=20, root=1), plan_seeds(count=20, root=2))
+    'root 1 -> 2, 20 seeds, 0 shared'
+    >>> describe_seed_change(plan_seeds(count=3, root=1), plan_seeds(count=5, root=1))
+    'root 1, 3 -> 5 seeds, 3 shared'
+    """
+    a, b = _origin(old), _origin(new)
+    if a == b:
+        origin = a
+    elif _root(old) is not None and _root(new) is not None:
+        origin = f"root {_root(old)} -> {_root(new)}"
+    else:
+        origin = f"{a} -> {b}"
+    count = f"{len(old)} seeds" if len(old) == len(new) else f"{len(old)} -> {len(new)} seeds"
+    return f"{origin}, {count}, {len(set(old) & set(new))} shared"
 
 
 def run_streams(seed: RunSeed) -> RunStreams:

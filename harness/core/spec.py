@@ -15,7 +15,7 @@ from typing import Any
 
 from harness.core.seeding import RunSeed, RunStreams, episode_seeds, run_streams
 
-__all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "sha256_of"]
+__all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "config_changes", "sha256_of"]
 
 
 def canonical_json(value: Any) -> str:
@@ -26,6 +26,30 @@ def canonical_json(value: Any) -> str:
 def sha256_of(value: Any) -> str:
     """``"sha256:<hex>"`` of the canonical JSON of ``value``."""
     return "sha256:" + hashlib.sha256(canonical_json(value).encode()).hexdigest()
+
+
+def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
+    if isinstance(value, Mapping) and value:
+        out: dict[str, Any] = {}
+        for key, item in value.items():
+            out.update(_flatten(item, f"{prefix}.{key}" if prefix else str(key)))
+        return out
+    return {prefix: value}
+
+
+def config_changes(old: Mapping[str, Any], new: Mapping[str, Any]) -> list[tuple[str, Any, Any]]:
+    """Dotted keys whose values differ between two configurations: ``(key, old, new)``, sorted by key.
+
+    Compared in their JSON form, so a config read back from a file (lists) equals the resolved
+    one (tuples); a key missing on one side has the value ``None`` there.
+
+    Examples
+    --------
+    >>> config_changes({"settings": {"hidden": (64,), "lr": 0.1}}, {"settings": {"hidden": [64], "lr": 0.2}})
+    [('settings.lr', 0.1, 0.2)]
+    """
+    a, b = (_flatten(json.loads(canonical_json(side))) for side in (old, new))
+    return [(k, a.get(k), b.get(k)) for k in sorted(a.keys() | b.keys()) if a.get(k) != b.get(k)]
 
 
 def _tuples(value: Any) -> Any:

@@ -25,20 +25,20 @@ margin) and, in ``strict`` mode, when one is inconclusive.
 from __future__ import annotations
 
 import dataclasses
-import json
 import os
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from harness.store.baseline import Baseline, read_baseline
+from harness.store.history import BaselineHistory
 from harness.gate.compare import Divergence, MetricCheck, StatisticalComparison, compare_sets
 from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
 from harness.core.errors import BaselineError, ResultsError
 from harness.manifest.policy import GatePolicy, PublishedReference
-from harness.core.spec import canonical_json
+from harness.core.spec import config_changes
 from harness.store.results import TRAINER_SOURCE
 
 __all__ = [
@@ -184,6 +184,7 @@ class Verdict:
     threshold: float | None
     baseline_set: CurveSet | None = dataclasses.field(default=None, repr=False)
     candidate_set: CurveSet | None = dataclasses.field(default=None, repr=False)
+    history: BaselineHistory | None = None
 
     @property
     def passed(self) -> bool:
@@ -201,7 +202,8 @@ class Verdict:
 
     def explain(self) -> str:
         """A plain-text explanation: the summary, each layer's reading and the gate's reasons."""
-        lines = [self.summary, "provenance: " + self.provenance.reading, self.exact.reading]
+        lines = [self.history.headline] if self.history is not None and self.history.changed else []
+        lines += [self.summary, "provenance: " + self.provenance.reading, self.exact.reading]
         lines += [c.reading for c in self.checks]
         if self.divergence is not None:
             lines.append(self.divergence.reading)
@@ -210,23 +212,11 @@ class Verdict:
         return "\n".join(lines)
 
 
-def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
-    if isinstance(value, Mapping) and value:
-        out: dict[str, Any] = {}
-        for key, item in value.items():
-            out.update(_flatten(item, f"{prefix}.{key}" if prefix else str(key)))
-        return out
-    return {prefix: value}
-
-
 def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
     """Compare configurations (key by key) and installed versions of the two sides."""
     if baseline is None:
         return Provenance("published references", candidate.label, None, candidate.config_hash, (), ())
-    # Compare the JSON forms: a config read back from a file has lists where the resolved one has tuples.
-    old, new = (_flatten(json.loads(canonical_json(side.config))) for side in (baseline, candidate))
-    changes = tuple(ConfigChange(k, old.get(k), new.get(k)) for k in sorted(old.keys() | new.keys())
-                    if old.get(k) != new.get(k))
+    changes = tuple(ConfigChange(*change) for change in config_changes(baseline.config, candidate.config))
     # The trainer's source fingerprint is not an installed version: a refactor changes it, and
     # a refactor is exactly where the exact check must run.
     drift = tuple(VersionChange(k, baseline.versions.get(k), candidate.versions.get(k))
@@ -340,6 +330,7 @@ def verify_manifest(
     baseline: Baseline | None,
     policy: GatePolicy | None = None,
     candidate_label: str | None = None,
+    history: BaselineHistory | None = None,
 ) -> Verdict:
     """Verify a manifest's results against its baseline and its published references.
 
@@ -355,6 +346,9 @@ def verify_manifest(
         The gate policy; the manifest's ``[check]`` by default.
     candidate_label
         How reports name the rerun.
+    history
+        How the baseline differs from its version at a git ref
+        (:func:`harness.store.history.baseline_history`); reports show a change first.
 
     Raises
     ------
@@ -383,8 +377,9 @@ def verify_manifest(
         threshold = task_threshold(manifest.task)
     if _needs_span(policy, references):
         floor = random_policy_return(manifest.task, manifest.evaluation)
-    return verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
-                       references=references, floor=floor, threshold=threshold)
+    verdict = verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
+                          references=references, floor=floor, threshold=threshold)
+    return verdict if history is None else dataclasses.replace(verdict, history=history)
 
 
 def baseline_for(manifest: Any, path: str | os.PathLike, *, required: bool = False) -> Baseline | None:

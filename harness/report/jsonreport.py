@@ -37,6 +37,7 @@ def verdict_json(verdict: Verdict) -> dict:
         exact[key] = None if exact[key] is None else list(exact[key])
     return {
         "schema": VERDICT_SCHEMA,
+        "baseline_history": None if v.history is None else v.history.to_json(),
         "manifest": v.manifest,
         "passed": v.passed,
         "summary": v.summary,

@@ -1,6 +1,8 @@
 """The JUnit XML report of a verdict: one test case per check, so CI systems show it natively.
 
-Test cases: ``provenance``, ``exact``, one per statistical check and ``divergence``.
+Test cases: ``baseline history`` (with ``verify --baseline-ref``; ``<skipped>`` with the
+change as its message when the baseline changed since the ref, so that CI lists it),
+``provenance``, ``exact``, one per statistical check and ``divergence``.
 A check that makes the gate fail (nondeterminism in ``exact``, a significantly
 worse metric) is a ``<failure>``; an inconclusive check that
 does not (non-strict policy) and a skipped exact check are ``<skipped>``; every
@@ -21,6 +23,8 @@ def render_junit(verdict: Verdict) -> str:
     v = verdict
     suite = ET.Element("testsuite", name=f"rlharness.verify.{v.manifest}")
     cases: list[tuple[str, str, str | None, str | None]] = []  # name, reading, failure, skipped
+    if v.history is not None:
+        cases.append(("baseline history", v.history.reading, None, v.history.headline if v.history.changed else None))
     cases.append(("provenance", v.provenance.reading, None, None))
     failing = set(v.gate.failing)
     cases.append(("exact", v.exact.reading, v.exact.reading if "exact" in failing else None,

@@ -25,14 +25,20 @@ def render_markdown(verdict: Verdict) -> str:
 
     Examples
     --------
-    The first line is the gate's outcome, e.g. ``## ✅ rl-harness: gate passed for cartpole-dqn``.
+    The first line is the gate's outcome, e.g. ``## ✅ rl-harness: gate passed for cartpole-dqn``,
+    unless the baseline changed since the git ref it was compared with: that comes first.
     """
     v = verdict
     mark = "✅" if v.passed else "❌"
-    out = [f"## {mark} rl-harness: gate {'passed' if v.passed else 'FAILED'} for `{v.manifest}`", "",
-           v.summary, "", f"- **baseline:** {v.provenance.baseline_label}",
-           f"- **candidate:** {v.provenance.candidate_label}", "",
-           "### 1. Provenance", "", v.provenance.reading, ""]
+    out = []
+    if v.history is not None and v.history.changed:
+        out += [f"> **The baseline {v.history.what} since `{v.history.ref}`**: {_cell(v.history.detail)}.", ""]
+    out += [f"## {mark} rl-harness: gate {'passed' if v.passed else 'FAILED'} for `{v.manifest}`", "",
+            v.summary, "", f"- **baseline:** {v.provenance.baseline_label}",
+            f"- **candidate:** {v.provenance.candidate_label}"]
+    if v.history is not None and not v.history.changed:
+        out.append(f"- **baseline history:** {v.history.reading}")
+    out += ["", "### 1. Provenance", "", v.provenance.reading, ""]
     if v.provenance.changes:
         out += _table(("changed key", "baseline", "candidate"), config_rows(v))
     if v.provenance.drift:

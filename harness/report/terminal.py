@@ -38,11 +38,15 @@ class VerdictReport:
     def __rich__(self) -> RenderableType:
         v = self.verdict
         parts: list[RenderableType] = []
+        if v.history is not None and v.history.changed:
+            parts.append(Text(v.history.headline, style="bold red"))
         headline = Text()
         headline.append("PASSED" if v.passed else "FAILED", style="bold green" if v.passed else "bold red")
         headline.append(f"  {v.summary}")
         parts.append(headline)
         parts.append(Text(f"baseline:  {v.provenance.baseline_label}\ncandidate: {v.provenance.candidate_label}"))
+        if v.history is not None and not v.history.changed:
+            parts.append(Text(v.history.reading, style="dim"))
         parts.append(Text("1. provenance: " + v.provenance.reading))
         if v.provenance.changes:
             parts.append(_two_sided_table("changed configuration keys", ("key", "baseline", "candidate"), config_rows(v)))

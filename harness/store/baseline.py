@@ -40,6 +40,7 @@ __all__ = [
     "baseline_from_results",
     "check_overwrite",
     "default_baseline_path",
+    "parse_baseline",
     "read_baseline",
     "write_baseline",
 ]
@@ -79,6 +80,9 @@ class Baseline:
     recording
         How the recording went: wall time, worker processes, where the runs came from
         (informational; not compared).
+    recorder
+        Who recorded it (``git config user.name`` or the login name at record time);
+        ``None`` for baselines recorded before the field existed, which then lack the key.
     path
         The file it was read from or written to, if any (not part of the content).
     """
@@ -92,11 +96,12 @@ class Baseline:
     harness_version: str
     runs: tuple[SeedCurve, ...]
     recording: Mapping[str, str] = dataclasses.field(default_factory=dict)
+    recorder: str | None = None
     path: Path | None = dataclasses.field(default=None, compare=False)
 
     def content(self) -> dict:
-        """The JSON content without the checksum."""
-        return {
+        """The JSON content without the checksum (``recorder`` only when known: additive)."""
+        content = {
             "schema": BASELINE_SCHEMA,
             "manifest": self.manifest,
             "config_hash": self.config_hash,
@@ -108,6 +113,9 @@ class Baseline:
             "harness_version": self.harness_version,
             "runs": [{"seed": r.seed.to_json(), "curve": r.curve.to_json()} for r in self.runs],
         }
+        if self.recorder is not None:
+            content["recorder"] = self.recorder
+        return content
 
     @property
     def checksum(self) -> str:
@@ -148,6 +156,7 @@ class RecordedManifest(Protocol):
 def baseline_from_results(
     manifest: RecordedManifest, results: ResultSet, *, recorded: str | None = None,
     recording: Mapping[str, str] | None = None,
+    recorder: str | None = None,
 ) -> Baseline:
     """Build a baseline from a manifest and its complete result set.
 
@@ -161,6 +170,8 @@ def baseline_from_results(
         ISO date to store; the current UTC time by default.
     recording
         How the recording went (wall time, workers, run sources), stored as given.
+    recorder
+        Who records it (stored as given; ``None`` leaves the field out).
 
     Raises
     ------
@@ -205,6 +216,7 @@ def baseline_from_results(
         harness_version=__version__,
         runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in records),
         recording={str(k): str(v) for k, v in (recording or {}).items()},
+        recorder=recorder,
     )
 
 
@@ -281,14 +293,28 @@ def read_baseline(path: str | os.PathLike, *, manifest_name: str | None = None) 
     if not path.is_file():
         raise BaselineError(f"{path}: no baseline found; {_RECORD_FIX} (or pass the right --baseline path)")
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise BaselineError(f"{path}: cannot be read ({exc})") from None
+    return parse_baseline(text, path=path, manifest_name=manifest_name)
+
+
+def parse_baseline(text: str, *, path: str | os.PathLike, manifest_name: str | None = None) -> Baseline:
+    """Check and read the text of a baseline file; ``path`` names it in errors (see :func:`read_baseline`).
+
+    Raises
+    ------
+    BaselineError
+        As :func:`read_baseline`.
+    """
+    path = Path(path)
+    try:
+        data = json.loads(text)
     except json.JSONDecodeError as exc:
         raise BaselineError(
             f"{path}: is truncated or not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}); "
             f"restore it from version control or {_RECORD_FIX} --overwrite"
         ) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise BaselineError(f"{path}: cannot be read ({exc})") from None
     if not isinstance(data, dict) or data.get("schema") != BASELINE_SCHEMA:
         found = data.get("schema") if isinstance(data, dict) else type(data).__name__
         raise BaselineError(f"{path}: [schema] is {found!r}, expected {BASELINE_SCHEMA!r}: not a baseline of this version")
@@ -309,6 +335,7 @@ def read_baseline(path: str | os.PathLike, *, manifest_name: str | None = None) 
             recording={str(k): str(v) for k, v in data.get("recording", {}).items()},
             recorded=str(data["recorded"]),
             harness_version=str(data["harness_version"]),
+            recorder=None if data.get("recorder") is None else str(data["recorder"]),
             runs=tuple(
                 SeedCurve(RunSeed.from_json(r["seed"]), LearningCurve.from_json(r["curve"])) for r in data["runs"]
             ),
