@@ -57,6 +57,12 @@ def skipping(run: RunSpec):
             yield Checkpoint(step, (0.0,))
 
 
+def indexed(run: RunSpec):
+    """Returns equal to the run's index: shows which index a trainer was handed."""
+    for step in run.checkpoint_steps():
+        yield Checkpoint(step, (float(run.index),))
+
+
 def toy_specs(
     n: int = 4, *, config: dict | None = None, budget: int = 100, trainer: str = "runner_toys:toy", name: str = "toy"
 ) -> tuple[RunSpec, ...]:

@@ -14,7 +14,7 @@ from harness.core.errors import ManifestError
 from harness.execute import Task, WorkerResult
 from harness.execute.work import lockstep_size, run_task
 from harness.manifest.loader import parse_manifest
-from harness.execute.runner import _tasks, run_manifest, run_specs
+from harness.execute.runner import RunPlan, _tasks, run_manifest, run_plans, run_specs
 from harness.store.results import read_results, record_text
 
 TABULAR = """
@@ -116,6 +116,62 @@ def test_events_follow_each_run_through_its_life(tmp_path):
     checkpoints = [e.step for e in events if e.index == 0 and e.kind == "checkpoint"]
     assert checkpoints == [0, 25, 50, 75, 100]
     assert events[0].budget == 100
+
+
+def test_plans_share_one_pool_and_write_what_each_writes_alone(tmp_path):
+    a, b = toy_specs(3, name="toy-a"), toy_specs(2, name="toy-b", budget=50)
+    events = []
+    outs = run_plans([RunPlan(a, tmp_path / "a"), RunPlan(b, tmp_path / "b")], workers=2, use_cache=False,
+                     on_event=events.append)
+    assert [o.results.manifest for o in outs] == ["toy-a", "toy-b"] and all(o.ok for o in outs)
+    run_specs(a, results_dir=tmp_path / "a1", workers=1, use_cache=False)
+    run_specs(b, results_dir=tmp_path / "b1", workers=1, use_cache=False)
+    assert folder_bytes(tmp_path / "a") == folder_bytes(tmp_path / "a1") and len(folder_bytes(tmp_path / "a")) == 3
+    assert folder_bytes(tmp_path / "b") == folder_bytes(tmp_path / "b1") and len(folder_bytes(tmp_path / "b")) == 2
+    assert read_results(tmp_path / "b").manifest == "toy-b"
+    # Events come back with each plan's own run index and its manifest.
+    finished = sorted((e.manifest, e.index) for e in events if e.kind == "finished")
+    assert finished == [("toy-a", 0), ("toy-a", 1), ("toy-a", 2), ("toy-b", 0), ("toy-b", 1)]
+
+
+def test_plans_hand_each_trainer_its_own_run_index(tmp_path):
+    # The executor reports indices shifted per plan, but a trainer (a command trainer passes
+    # {seed_index} to its program) must see the index of the run in its own manifest.
+    plans = [RunPlan(toy_specs(2, name=n, trainer="runner_toys:indexed"), tmp_path / n) for n in ("p", "q")]
+    outs = run_plans(plans, workers=2, use_cache=False)
+    for out in outs:
+        assert [r.curve.checkpoints[-1].returns for r in out.results.records] == [(0.0,), (1.0,)]
+
+
+def test_plans_start_longest_first(tmp_path):
+    # One worker, single-run tasks: the tasks start in decreasing order of estimated cost
+    # (longest processing time first, Graham 1969), a plan's own runs in seed order.
+    cheap, dear = toy_specs(2, name="cheap"), toy_specs(2, name="dear")
+    events = []
+    run_plans([RunPlan(cheap, tmp_path / "c", run_cost=1.0), RunPlan(dear, tmp_path / "d", run_cost=10.0)],
+              workers=1, use_cache=False, on_event=events.append)
+    started = [(e.manifest, e.index) for e in events if e.kind == "started"]
+    assert started == [("dear", 0), ("dear", 1), ("cheap", 0), ("cheap", 1)]
+    with pytest.raises(ValueError, match="the plans' manifest names must differ"):
+        run_plans([RunPlan(cheap, tmp_path / "x"), RunPlan(cheap, tmp_path / "y")], use_cache=False)
+    with pytest.raises(ValueError, match="`run_cost` must be a positive number or None, got 0"):
+        RunPlan(cheap, tmp_path / "x", run_cost=0)
+
+
+def test_interrupted_plans_resume_each_in_its_own_folder(tmp_path):
+    def stop_after_first(event):
+        if event.kind == "finished":
+            raise KeyboardInterrupt
+
+    plans = [RunPlan(toy_specs(2, name=n, config={"pause": 0.05}), tmp_path / n) for n in ("p", "q")]
+    with pytest.raises(KeyboardInterrupt):
+        run_plans(plans, workers=2, use_cache=False, on_event=stop_after_first)
+    assert mp.active_children() == []
+    kept = {n: folder_bytes(tmp_path / n) for n in ("p", "q")}
+    assert 1 <= sum(map(len, kept.values())) < 4
+    outs = run_plans(plans, workers=2, use_cache=False)
+    assert sum(list(o.sources.values()).count("resumed") for o in outs) == sum(map(len, kept.values()))
+    assert all(folder_bytes(tmp_path / n)[k] == v for n in kept for k, v in kept[n].items())
 
 
 def test_interrupt_stops_workers_and_keeps_finished_runs(tmp_path):

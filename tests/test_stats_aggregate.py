@@ -5,11 +5,15 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from harness.core.errors import TooFewSeedsWarning
+
 from harness.stats import (
     bootstrap_iqm,
     bootstrap_probability_of_improvement,
+    bootstrap_task_mean,
     iqm,
     probability_of_improvement,
+    task_mean,
 )
 
 
@@ -79,3 +83,43 @@ def test_aggregate_iv():
         iqm([])
     with pytest.raises(ValueError, match=r"`tasks_x` must give one task per value of `x` \(3\)"):
         probability_of_improvement([1, 2, 3], [1, 2], tasks_x=["a"], tasks_y=["a", "a"])
+
+
+def test_task_mean_weighs_tasks_equally():
+    # Agarwal et al. (2021): the mean aggregate averages each task's mean (hand-computed):
+    # task a = (0 + 1)/2 = 0.5, task b = (1 + 4 + 7)/3 = 4 -> (0.5 + 4)/2 = 2.25, while the pooled
+    # mean of the five runs would be 13/5 = 2.6.
+    assert task_mean([0, 1, 1, 4, 7], tasks=list("aabbb")) == pytest.approx(2.25)
+    assert task_mean([0, 1, 1, 4, 7]) == pytest.approx(2.6)
+    with pytest.raises(ValueError, match=r"`tasks` must give one label per value \(5\)"):
+        task_mean([0, 1, 1, 4, 7], tasks=list("aab"))
+
+
+def test_stratified_task_mean_standard_error_matches_the_ideal_bootstrap():
+    # The ideal bootstrap standard error of a mean of n values is sqrt(sum (x - xbar)^2) / n
+    # (Efron & Tibshirani 1993, chapter 6: the plug-in sd over sqrt(n); recalled from memory,
+    # it is the variance of the mean of n draws with replacement). Tasks are resampled
+    # independently, so the mean of M task means has variance sum_m se_m^2 / M^2.
+    rng = np.random.default_rng(np.random.SeedSequence(5))
+    a, b = rng.normal(0.0, 1.0, 12), rng.normal(10.0, 3.0, 8)
+    scores = np.concatenate([a, b])
+    tasks = ["a"] * 12 + ["b"] * 8
+    ideal = np.sqrt(np.sum((a - a.mean()) ** 2) / 12**2 + np.sum((b - b.mean()) ** 2) / 8**2) / 2
+    r = bootstrap_task_mean(scores, tasks=tasks, n_resamples=20000, rng=rng)
+    assert r.method == "stratified percentile"
+    assert r.estimate == pytest.approx((a.mean() + b.mean()) / 2)
+    assert r.standard_error == pytest.approx(ideal, rel=0.03)
+    # Unstratified resampling mixes the tasks (the share of runs from task b varies), so its
+    # spread is far larger here: the reason Agarwal et al. stratify.
+    plain = bootstrap_task_mean(scores, n_resamples=4000, rng=rng)
+    assert plain.standard_error > 2 * r.standard_error
+    with pytest.raises(ValueError, match="`method` must be 'percentile' when tasks are given"):
+        bootstrap_task_mean(scores, tasks=tasks, method="bca")
+
+
+def test_stratified_interval_of_constant_tasks_is_a_point():
+    # Runs constant within each task: every stratified resample is the data itself (hand-computed).
+    scores = [0.0, 0.0, 0.0, 1.0, 1.0, 1.0]
+    with pytest.warns(TooFewSeedsWarning, match="6 seeds"):  # Colas et al. (2018): too few for a bootstrap
+        r = bootstrap_task_mean(scores, tasks=list("aaabbb"), n_resamples=500, rng=1)
+    assert (r.interval.low, r.interval.high) == (0.5, 0.5)

@@ -50,6 +50,8 @@ class RunEvent:
         The run's budget in environment steps (for ``"planned"``).
     message
         For ``"failed"``: the first line of the reason.
+    manifest
+        The run's manifest name (set by the runner; ``None`` in an executor's own events).
     """
 
     kind: str
@@ -60,6 +62,7 @@ class RunEvent:
     source: str | None = None
     budget: int | None = None
     message: str | None = None
+    manifest: str | None = None
 
     def __post_init__(self) -> None:
         if self.kind not in EVENT_KINDS:
@@ -72,13 +75,16 @@ class Task:
 
     ``search_path`` is a folder where the worker may also look for a user trainer's module (the
     manifest's folder); ``results_dir`` is the results folder, where a command trainer's runs
-    keep their curve file and output log.
+    keep their curve file and output log. ``index_offset`` is added to every run index the task
+    reports (events and results), so that the runs of several manifests sharing one executor
+    (:func:`harness.execute.runner.run_plans`) report distinct indices; the RunSpecs keep theirs.
     """
 
     specs: tuple[RunSpec, ...]
     time_limit: float | None = None
     search_path: str | None = None
     results_dir: str | None = None
+    index_offset: int = 0
 
     def __post_init__(self) -> None:
         if not self.specs:
@@ -103,7 +109,7 @@ class Task:
     def payload(self) -> str:
         runs = [s.to_json() for s in self.specs]
         return json.dumps({"runs": runs, "search_path": self.search_path, "results_dir": self.results_dir,
-                           "time_limit": self.time_limit}, allow_nan=False)
+                           "time_limit": self.time_limit, "index_offset": self.index_offset}, allow_nan=False)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -122,7 +128,7 @@ class WorkerResult:
     @classmethod
     def failed_all(cls, task: Task, reason: str, *, wall_seconds: float) -> tuple[WorkerResult, ...]:
         """The same failure for every run of a task (time limit, dead worker); versions unknown."""
-        return tuple(cls(s.index, None, reason, None, wall_seconds) for s in task.specs)
+        return tuple(cls(task.index_offset + s.index, None, reason, None, wall_seconds) for s in task.specs)
 
     @classmethod
     def from_plain(cls, data: dict) -> tuple[WorkerResult, ...]:

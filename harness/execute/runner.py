@@ -27,6 +27,7 @@ lock and takes the result from the cache.
 
 from __future__ import annotations
 
+import bisect
 import contextlib
 import dataclasses
 import os
@@ -58,7 +59,7 @@ from harness.store.results import (
     write_record,
 )
 
-__all__ = ["DEFAULT_RESULTS_DIR", "RunOutcome", "run_manifest", "run_specs"]
+__all__ = ["DEFAULT_RESULTS_DIR", "RunOutcome", "RunPlan", "run_manifest", "run_plans", "run_specs"]
 
 #: Results go to ``<DEFAULT_RESULTS_DIR>/<manifest name>/`` unless told otherwise.
 DEFAULT_RESULTS_DIR = "results"
@@ -99,15 +100,9 @@ class RunOutcome:
         return not self.results.failed()
 
 
-def _run_specs_iv(
-    specs: Sequence[RunSpec], time_limit: float | None, results_dir: object, cache: object, on_event: object
-) -> tuple[RunSpec, ...]:
+def _plan_iv(specs: Sequence[RunSpec], results_dir: object) -> tuple[RunSpec, ...]:
     if not isinstance(results_dir, (str, os.PathLike)):
         raise TypeError(f"`results_dir` must be a path, got {type(results_dir).__name__} {results_dir!r}")
-    if cache is not None and not isinstance(cache, (RunCache, str, os.PathLike)):
-        raise TypeError(f"`cache` must be a RunCache, a folder or None, got {type(cache).__name__} {cache!r}")
-    if on_event is not None and not callable(on_event):
-        raise TypeError(f"`on_event` must be callable or None, got {type(on_event).__name__} {on_event!r}")
     if not specs:
         raise ValueError("`specs` must hold at least one RunSpec, got none")
     for s in specs:
@@ -121,9 +116,16 @@ def _run_specs_iv(
         )
     if len({(s.manifest, s.config_hash) for s in ordered}) != 1:
         raise ValueError("`specs` must all come from one manifest (same name and config hash)")
+    return ordered
+
+
+def _options_iv(time_limit: float | None, cache: object, on_event: object) -> None:
+    if cache is not None and not isinstance(cache, (RunCache, str, os.PathLike)):
+        raise TypeError(f"`cache` must be a RunCache, a folder or None, got {type(cache).__name__} {cache!r}")
+    if on_event is not None and not callable(on_event):
+        raise TypeError(f"`on_event` must be callable or None, got {type(on_event).__name__} {on_event!r}")
     if time_limit is not None and (isinstance(time_limit, bool) or not isinstance(time_limit, (int, float)) or not time_limit > 0):
         raise ValueError(f"`time_limit` must be a positive number of seconds or None, got {time_limit!r}")
-    return ordered
 
 
 @contextlib.contextmanager
@@ -192,7 +194,11 @@ def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | Non
 
 
 class _Run:
-    """State of one :func:`run_specs` call: records so far, claims held, where results go."""
+    """One plan's state in a :func:`run_plans` call: records so far, claims held, where results go.
+
+    ``offset`` turns the plan's run indices into indices unique across the plans of the call:
+    the executor reports ``offset + index`` (the RunSpec itself keeps its index).
+    """
 
     def __init__(
         self,
@@ -201,12 +207,16 @@ class _Run:
         versions: dict[str, str],
         cache: RunCache | None,
         on_event: OnEvent | None,
+        offset: int = 0,
+        search_path: str | None = None,
     ):
         self.specs: tuple[RunSpec, ...] = specs
         self.folder: Path = folder
         self.versions: dict[str, str] = versions
         self.cache: RunCache | None = cache
         self.on_event: OnEvent | None = on_event
+        self.offset: int = offset
+        self.search_path: str | None = search_path
         self.records: dict[int, RunRecord] = {}
         self.sources: dict[int, str] = {}
         self.wall: dict[int, float] = {}
@@ -214,7 +224,19 @@ class _Run:
 
     def emit(self, event: RunEvent) -> None:
         if self.on_event is not None:
-            self.on_event(event)
+            self.on_event(dataclasses.replace(event, manifest=self.specs[0].manifest))
+
+    def outgoing(self, task: Task) -> Task:
+        """The task as the executor sees it: reporting run indices unique across the call's plans."""
+        return dataclasses.replace(task, index_offset=self.offset) if self.offset else task
+
+    def write_index(self) -> ResultSet:
+        """Write the index of a plan whose every run has a record; return its result set."""
+        results = ResultSet(self.specs[0].manifest, self.specs[0].config_hash,
+                            tuple(self.records[s.index] for s in self.specs))
+        with FileLock(str(self.folder / _LOCK_FILE)):
+            write_index(self.folder, results, timings=self.wall, sources=self.sources)
+        return results
 
     def keep(self, record: RunRecord, source: str, wall: float | None = None) -> None:
         index = record.spec.index
@@ -287,30 +309,177 @@ def _start(run: _Run, executor: Executor, task: Task, *, wait: bool) -> bool:
     claimed = run.claim(task, wait=wait)
     if claimed is None:
         return all(s.index in run.records for s in task.specs)
-    executor.submit(claimed)
+    executor.submit(run.outgoing(claimed))
     for spec in claimed.specs:
         run.emit(RunEvent("started", spec.index, spec.seed.label))
     return True
 
 
-def _drive(run: _Run, executor: Executor, tasks: list[Task]) -> None:
+def _owner(runs: Sequence[_Run], index: int) -> tuple[_Run, int]:
+    """The plan a run index of the executor belongs to, and the run's index in that plan."""
+    run = runs[bisect.bisect_right([r.offset for r in runs], index) - 1]
+    return run, index - run.offset
+
+
+def _drive(runs: Sequence[_Run], executor: Executor, jobs: list[tuple[_Run, Task]]) -> None:
     """Submit tasks as workers free up, claiming each first; collect events and results."""
-    queue: deque[Task] = deque(tasks)
+    queue: deque[tuple[_Run, Task]] = deque(jobs)
     while queue or executor.pending():
-        skipped: list[Task] = []
+        skipped: list[tuple[_Run, Task]] = []
         while queue and executor.capacity() > 0:
-            task = queue.popleft()
+            run, task = queue.popleft()
             if not _start(run, executor, task, wait=False):
-                skipped.append(task)
+                skipped.append((run, task))
         queue.extendleft(reversed(skipped))
         if queue and not executor.pending():
             # Every remaining run is being trained by another runner: wait for the first.
-            _start(run, executor, queue.popleft(), wait=True)
+            run, task = queue.popleft()
+            _start(run, executor, task, wait=True)
         for item in executor.poll(_POLL):
+            run, local = _owner(runs, item.index)
             if isinstance(item, RunEvent):
-                run.emit(item)
+                run.emit(dataclasses.replace(item, index=local))
             else:
-                run.accept(item)
+                run.accept(dataclasses.replace(item, index=local))
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class RunPlan:
+    """One manifest's runs for :func:`run_plans`.
+
+    Attributes
+    ----------
+    specs
+        The manifest's complete plan (indices 0..n-1, any order; stored in index order).
+    results_dir
+        Folder for the per-seed files and the index; created if missing.
+    trainer_path
+        A folder where workers also look for a user trainer's module (the manifest's folder).
+    run_cost
+        Estimated cost of one run in any unit shared by the plans of a call (seconds, say);
+        only the order of training depends on it. ``None``: the run's budget in steps.
+    """
+
+    specs: tuple[RunSpec, ...]
+    results_dir: Path
+    trainer_path: str | None = None
+    run_cost: float | None = None
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "specs", _plan_iv(self.specs, self.results_dir))
+        object.__setattr__(self, "results_dir", Path(self.results_dir))
+        if self.trainer_path is not None:
+            object.__setattr__(self, "trainer_path", str(Path(self.trainer_path).absolute()))
+        if self.run_cost is not None and not (isinstance(self.run_cost, (int, float)) and self.run_cost > 0):
+            raise ValueError(f"`run_cost` must be a positive number or None, got {self.run_cost!r}")
+
+    @property
+    def cost(self) -> float:
+        """Estimated cost of one run (:attr:`run_cost`, else the budget in steps)."""
+        return float(self.run_cost if self.run_cost is not None else self.specs[0].budget)
+
+
+def run_plans(
+    plans: Sequence[RunPlan],
+    *,
+    workers: int | None = None,
+    executor: str = "local",
+    scheduler: object = None,
+    context: str | BaseContext | None = None,
+    cache: RunCache | str | os.PathLike | None = None,
+    use_cache: bool = True,
+    time_limit: float | None = None,
+    on_event: OnEvent | None = None,
+) -> tuple[RunOutcome, ...]:
+    """Train (or resume, or take from the cache) every run of several manifests in one worker pool.
+
+    Each plan is resumed, cached and written exactly as by :func:`run_specs`, into its own
+    results folder. The tasks (lockstep groups) of all plans share one executor and start
+    longest first (by :attr:`RunPlan.cost` times the runs in the task), so that the slowest
+    runs do not start last and leave workers idle at the end (longest-processing-time-first
+    scheduling; Graham 1969).
+
+    Parameters
+    ----------
+    plans
+        One :class:`RunPlan` per manifest; manifest names and results folders must differ.
+    workers, executor, scheduler, context, cache, use_cache, time_limit
+        As in :func:`run_specs`.
+    on_event
+        Called with each :class:`RunEvent` (its ``manifest`` set), in the calling thread.
+
+    Returns
+    -------
+    tuple of RunOutcome
+        One per plan, in the order given.
+
+    Raises
+    ------
+    KeyboardInterrupt
+        On Ctrl-C or SIGTERM, after stopping the workers; finished runs are on disk.
+
+    References
+    ----------
+    .. [1] Graham, R. L. (1969). Bounds on multiprocessing timing anomalies.
+       SIAM Journal on Applied Mathematics 17(2):416–429.
+    """
+    start = time.perf_counter()
+    _options_iv(time_limit, cache, on_event)
+    plans = tuple(plans)
+    if not plans or not all(isinstance(p, RunPlan) for p in plans):
+        raise TypeError(f"`plans` must be a non-empty sequence of RunPlan values, got {plans!r}")
+    for what, values in (("manifest names", [p.specs[0].manifest for p in plans]),
+                         ("results folders", [p.results_dir.absolute() for p in plans])):
+        if len(set(values)) != len(values):
+            raise ValueError(f"the plans' {what} must differ, got {[str(v) for v in values]}")
+    if use_cache:
+        cache = cache if isinstance(cache, RunCache) else RunCache(cache)
+    else:
+        cache = None
+    runs, offset = [], 0
+    for plan in plans:
+        plan.results_dir.mkdir(parents=True, exist_ok=True)
+        versions = run_versions(plan.specs[0], search_path=plan.trainer_path)
+        runs.append(_Run(plan.specs, plan.results_dir, versions, cache, on_event, offset, plan.trainer_path))
+        offset += len(plan.specs)
+        with FileLock(str(plan.results_dir / _LOCK_FILE)):
+            _drop_stale_index(plan.results_dir, plan.specs[0].manifest, plan.specs[0].config_hash)
+    for run in runs:
+        for spec in run.specs:
+            run.emit(RunEvent("planned", spec.index, spec.seed.label, budget=spec.budget))
+    for run in runs:
+        for spec in run.specs:
+            record = _resumable(run.folder, spec, run.versions)
+            if record is not None:
+                run.keep(record, "resumed")
+            else:
+                run.from_cache(spec)
+    todo = {id(run): [s for s in run.specs if s.index not in run.records] for run in runs}
+    # Resolving each trainer's lockstep size fails early on a trainer that cannot be found.
+    sizes = {id(run): lockstep_size(todo[id(run)][0], search_path=run.search_path) for run in runs if todo[id(run)]}
+    for run in runs:
+        if todo[id(run)]:  # files are about to change: until the new index is written, the folder has none
+            with FileLock(str(run.folder / _LOCK_FILE)):
+                (run.folder / INDEX_FILE).unlink(missing_ok=True)
+    with _sigterm_as_interrupt():
+        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if sizes else None
+        try:
+            if pool is not None:
+                slots = max(1, pool.capacity())
+                jobs = [(plan.cost * len(task.specs), n, run, task)
+                        for n, (plan, run) in enumerate(zip(plans, runs, strict=True)) if todo[id(run)]
+                        for task in _tasks(todo[id(run)], sizes[id(run)], slots, time_limit, run.search_path,
+                                           str(run.folder.absolute()))]
+                jobs.sort(key=lambda job: (-job[0], job[1]))  # longest first; stable within a plan
+                _drive(runs, pool, [(run, task) for _, _, run, task in jobs])
+        finally:
+            if pool is not None:
+                pool.close()
+            for run in runs:
+                run.release_all()
+    elapsed = time.perf_counter() - start
+    return tuple(RunOutcome(run.write_index(), run.folder, dict(sorted(run.sources.items())),
+                            dict(sorted(run.wall.items())), elapsed) for run in runs)
 
 
 def run_specs(
@@ -364,46 +533,9 @@ def run_specs(
     KeyboardInterrupt
         On Ctrl-C or SIGTERM, after stopping the workers; finished runs are on disk.
     """
-    start = time.perf_counter()
-    specs = _run_specs_iv(specs, time_limit, results_dir, cache, on_event)
-    folder = Path(results_dir)
-    folder.mkdir(parents=True, exist_ok=True)
-    if use_cache:
-        cache = cache if isinstance(cache, RunCache) else RunCache(cache)
-    else:
-        cache = None
-    search_path = None if trainer_path is None else str(Path(trainer_path).absolute())
-    run = _Run(specs, folder, run_versions(specs[0], search_path=search_path), cache, on_event)
-    manifest, config_hash = specs[0].manifest, specs[0].config_hash
-    with FileLock(str(folder / _LOCK_FILE)):
-        _drop_stale_index(folder, manifest, config_hash)
-    for spec in specs:
-        run.emit(RunEvent("planned", spec.index, spec.seed.label, budget=spec.budget))
-    for spec in specs:
-        record = _resumable(folder, spec, run.versions)
-        if record is not None:
-            run.keep(record, "resumed")
-        else:
-            run.from_cache(spec)
-    todo = [s for s in specs if s.index not in run.records]
-    k = lockstep_size(todo[0], search_path=search_path) if todo else 1  # resolves the trainer: fails early
-    if todo:  # files are about to change: until the new index is written, the folder has none
-        with FileLock(str(folder / _LOCK_FILE)):
-            (folder / INDEX_FILE).unlink(missing_ok=True)
-    with _sigterm_as_interrupt():
-        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if todo else None
-        try:
-            if pool is not None:
-                _drive(run, pool, _tasks(todo, k, max(1, pool.capacity()), time_limit, search_path,
-                                         str(folder.absolute())))
-        finally:
-            if pool is not None:
-                pool.close()
-            run.release_all()
-    results = ResultSet(manifest, config_hash, tuple(run.records[s.index] for s in specs))
-    with FileLock(str(folder / _LOCK_FILE)):
-        write_index(folder, results, timings=run.wall, sources=run.sources)
-    return RunOutcome(results, folder, dict(sorted(run.sources.items())), dict(sorted(run.wall.items())), time.perf_counter() - start)
+    plan = RunPlan(tuple(specs), results_dir, trainer_path)
+    return run_plans([plan], workers=workers, executor=executor, scheduler=scheduler, context=context, cache=cache,
+                     use_cache=use_cache, time_limit=time_limit, on_event=on_event)[0]
 
 
 def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **options) -> RunOutcome:

@@ -125,6 +125,17 @@ def _train(specs: list[RunSpec], search_path: str | None, emit: Emit | None,
     return curves, failures
 
 
+def _shifted(emit: Emit | None, offset: int) -> Emit | None:
+    """``emit`` reporting ``offset + index`` (itself when the offset is 0)."""
+    if emit is None or not offset:
+        return emit
+
+    def shifted(index: int, seed: str, step: int, mean: float) -> None:
+        emit(offset + index, seed, step, mean)
+
+    return shifted
+
+
 def run_task(payload: str, emit: Emit | None = None) -> dict:
     """Train the runs of a task (JSON from :meth:`Task.payload`); return plain data.
 
@@ -132,9 +143,10 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
     ----------
     payload
         ``{"runs": [RunSpec.to_json(), ...], "search_path": folder or null, "results_dir": folder or
-        null, "time_limit": seconds or null}`` as JSON text; the search path is where a user
-        trainer's module may be found (the manifest's folder); a command trainer runs in the
-        results folder and stops its program at the time limit.
+        null, "time_limit": seconds or null, "index_offset": int}`` as JSON text; the search path
+        is where a user trainer's module may be found (the manifest's folder); a command trainer
+        runs in the results folder and stops its program at the time limit; the index offset is
+        added to every index reported (the runs keep their own).
     emit
         Called with ``(index, seed label, step, mean return)`` after each accepted checkpoint.
 
@@ -146,6 +158,8 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
     """
     data = json.loads(payload)
     specs = [RunSpec.from_json(d) for d in data["runs"]]
+    offset = int(data.get("index_offset", 0))
+    emit = _shifted(emit, offset)
     start = time.perf_counter()
     search_path = data.get("search_path")
     workspace = command.Workspace(Path(search_path or "."), Path(data.get("results_dir") or "."), data.get("time_limit"))
@@ -154,7 +168,7 @@ def run_task(payload: str, emit: Emit | None = None) -> dict:
         versions = dict(installed_versions())
     runs = [
         {
-            "index": spec.index,
+            "index": offset + spec.index,
             "curve": LearningCurve(tuple(cps)).to_json() if failure is None else None,
             "failure": failure,
         }

@@ -1,8 +1,12 @@
-"""A plot of both sets of learning curves with confidence bands (PNG or SVG; matplotlib optional).
+"""Plots (PNG or SVG; matplotlib optional): learning curves of one verdict, performance profiles of a suite.
 
-The band at each checkpoint is the two-sided t confidence interval of the mean
-evaluation return across seeds (Student 1908): seeds are the independent
-samples. matplotlib is an optional extra; without it :func:`plot_curves` raises
+:func:`plot_curves`: both sets of learning curves; the band at each checkpoint is
+the two-sided t confidence interval of the mean evaluation return across seeds
+(Student 1908): seeds are the independent samples.
+:func:`plot_profiles`: the performance profiles of a suite's candidate and
+baseline (share of runs above each normalised score; Agarwal et al. 2021) with
+their pointwise stratified bootstrap bands.
+matplotlib is an optional extra; without it both raise
 :class:`PlotUnavailableError` saying how to install it.
 """
 
@@ -15,10 +19,11 @@ import numpy as np
 from scipy import stats as _st
 
 from harness.core.atomic import atomic_path
-from harness.gate.curveset import CurveSet
 from harness.core.errors import HarnessError
+from harness.gate.curveset import CurveSet
+from harness.gate.suite_aggregate import SuiteAggregate
 
-__all__ = ["INSTALL_HINT", "PlotUnavailableError", "curve_band", "plot_curves"]
+__all__ = ["INSTALL_HINT", "PlotUnavailableError", "curve_band", "plot_curves", "plot_profiles"]
 
 INSTALL_HINT = "pip install 'rl-harness[plot]'  (or: pip install matplotlib)"
 _FORMATS = (".png", ".svg")
@@ -59,17 +64,7 @@ def plot_curves(baseline: CurveSet | None, candidate: CurveSet, path: str | os.P
     PlotUnavailableError
         If matplotlib is not installed.
     """
-    path = Path(path)
-    if path.suffix.lower() not in _FORMATS:
-        raise ValueError(f"`path` must end in .png or .svg, got {str(path)!r}")
-    try:
-        import matplotlib
-
-        matplotlib.use("Agg", force=False)
-        from matplotlib.figure import Figure
-    except ImportError:
-        raise PlotUnavailableError(f"plotting needs matplotlib, which is not installed: {INSTALL_HINT}") from None
-    fig = Figure(figsize=(7.0, 4.2), layout="constrained")
+    fig = _figure(path, (7.0, 4.2))
     ax = fig.add_subplot()
     sides = [("baseline", baseline, "tab:blue", "-"), ("candidate", candidate, "tab:orange", "--")]
     for name, curves, colour, style in sides:
@@ -84,7 +79,62 @@ def plot_curves(baseline: CurveSet | None, candidate: CurveSet, path: str | os.P
     ax.set_title(title or candidate.manifest)
     ax.legend(loc="best", title="mean and 95% interval")
     ax.grid(alpha=0.3)
+    return _save(fig, path)
+
+
+def _figure(path: str | os.PathLike, size: tuple[float, float]):
+    """A matplotlib Figure (no pyplot state), after checking the path's format and that matplotlib is there."""
+    if Path(path).suffix.lower() not in _FORMATS:
+        raise ValueError(f"`path` must end in .png or .svg, got {str(path)!r}")
+    try:
+        import matplotlib
+
+        matplotlib.use("Agg", force=False)
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise PlotUnavailableError(f"plotting needs matplotlib, which is not installed: {INSTALL_HINT}") from None
+    return Figure(figsize=size, layout="constrained")
+
+
+def _save(fig, path: str | os.PathLike) -> Path:
+    path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=path.suffix[1:].lower(), metadata={"Date": None} if path.suffix.lower() == ".svg" else None)
+        fig.savefig(tmp, format=path.suffix[1:].lower(),
+                    metadata={"Date": None} if path.suffix.lower() == ".svg" else None)
     return path
+
+
+def plot_profiles(aggregate: SuiteAggregate, path: str | os.PathLike, *, title: str | None = None) -> Path:
+    """Plot the candidate's and the baseline's performance profiles with their bands to ``path``, atomically.
+
+    Raises
+    ------
+    ValueError
+        If ``path`` does not end in ``.png`` or ``.svg``.
+    PlotUnavailableError
+        If matplotlib is not installed.
+    """
+    fig = _figure(path, (7.0, 4.4))
+    ax = fig.add_subplot()
+    sides = [("baseline", aggregate.baseline_profile, "tab:blue", "-"),
+             ("candidate", aggregate.candidate_profile, "tab:orange", "--")]
+    for name, profile, colour, style in sides:
+        runs = sum(len(getattr(t, name)) for t in aggregate.tasks)
+        taus = np.asarray(profile.thresholds)
+        ax.plot(taus, profile.share, color=colour, linestyle=style, drawstyle="steps-post",
+                label=f"{name} ({runs} runs)")
+        ax.fill_between(taus, profile.low, profile.high, color=colour, alpha=0.2, linewidth=0, step="post")
+    for x, text in ((0.0, "random policy"), (1.0, "threshold")):
+        ax.axvline(x, color="grey", linewidth=0.8, linestyle=":")
+        ax.annotate(text, (x, 0.5), xytext=(-3, 0), textcoords="offset points", color="grey", fontsize=8,
+                    rotation=90, ha="right", va="center")
+    ax.set_ylim(-0.02, 1.02)
+    ax.set_xlabel("normalised final return (0 = random policy, 1 = threshold)")
+    ax.set_ylabel("share of runs scoring above")
+    level = aggregate.candidate_profile.confidence_level
+    ax.set_title(title or f"performance profile over {len(aggregate.tasks)} tasks: "
+                 + ", ".join(t.manifest for t in aggregate.tasks), fontsize=10, wrap=True)
+    ax.legend(loc="lower left", title=f"{level:.0%} stratified bootstrap band")
+    ax.grid(alpha=0.3)
+    return _save(fig, path)

@@ -30,7 +30,7 @@ from harness.gate.metrics import area_under_curve, final_return
 from harness.execute.runner import RunOutcome
 from harness.trainers.command import OUTPUT_PREFIX
 
-__all__ = ["RunProgress", "RunSummary", "format_return"]
+__all__ = ["RunProgress", "RunSummary", "SuiteProgress", "format_return"]
 
 #: With more seeds than this, finished seeds leave the live display to keep it short.
 MAX_ROWS = 16
@@ -119,6 +119,77 @@ class RunProgress:
             self._finish(event, format_return(event.mean_return) if event.source == "trained" else event.source)
         elif event.kind == "failed":
             self._finish(event, "FAILED")
+
+
+class SuiteProgress:
+    """Live progress of a suite in one display: a row per task (steps, seeds done) and an overall row.
+
+    An ``on_event`` callback for :func:`harness.execute.runner.run_plans`, whose events carry
+    their manifest. Draws nothing when the console is not a terminal.
+
+    Examples
+    --------
+    >>> from io import StringIO
+    >>> with SuiteProgress(Console(file=StringIO())) as progress:
+    ...     progress(RunEvent("planned", 0, "7", budget=100, manifest="toy"))
+    """
+
+    def __init__(self, console: Console):
+        self.progress = Progress(
+            SpinnerColumn(),
+            TextColumn("{task.description}"),
+            BarColumn(bar_width=16),
+            TextColumn("{task.fields[seeds]}"),
+            TimeElapsedColumn(),
+            TimeRemainingColumn(compact=True),
+            console=console,
+            disable=not console.is_terminal,
+        )
+        self._rows: dict[str, TaskID] = {}
+        self._seeds: dict[str, list[int]] = {}  # manifest -> [done, failed, planned]
+        self._steps: dict[tuple[str, int], int] = {}
+        self._budget: dict[tuple[str, int], int] = {}
+        self._overall = self.progress.add_task("all tasks", total=0, seeds="", start=True)
+
+    def __enter__(self) -> SuiteProgress:
+        self.progress.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.progress.stop()
+
+    def _advance(self, manifest: str, key: tuple[str, int], step: int) -> None:
+        delta = step - self._steps.get(key, 0)
+        self._steps[key] = step
+        self.progress.update(self._rows[manifest], advance=delta)
+        self.progress.update(self._overall, advance=delta)
+
+    def _label(self, manifest: str) -> None:
+        done, failed, planned = self._seeds[manifest]
+        self.progress.update(self._rows[manifest], seeds=f"{done}/{planned} seeds" + (f", {failed} failed" if failed else ""))
+        totals = [sum(v[i] for v in self._seeds.values()) for i in range(3)]
+        self.progress.update(self._overall, seeds=f"{totals[0]}/{totals[2]} seeds"
+                             + (f", {totals[1]} failed" if totals[1] else ""))
+
+    def __call__(self, event: RunEvent) -> None:
+        name = event.manifest or "?"
+        key = (name, event.index)
+        if event.kind == "planned":
+            if name not in self._rows:
+                self._rows[name] = self.progress.add_task(name, total=0, seeds="", start=True)
+                self._seeds[name] = [0, 0, 0]
+            self._budget[key] = event.budget
+            self._seeds[name][2] += 1
+            self.progress.update(self._rows[name], total=self.progress.tasks[self._rows[name]].total + event.budget)
+            self.progress.update(self._overall, total=self.progress.tasks[self._overall].total + event.budget)
+            self._label(name)
+        elif event.kind == "checkpoint":
+            self._advance(name, key, event.step)
+        elif event.kind in ("finished", "failed"):
+            self._advance(name, key, self._budget[key])
+            self._seeds[name][0] += 1
+            self._seeds[name][1] += event.kind == "failed"
+            self._label(name)
 
 
 class RunSummary:

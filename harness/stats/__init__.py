@@ -14,8 +14,10 @@ from harness.stats._validate import ALTERNATIVES, Alternative
 from harness.stats.aggregate import (
     bootstrap_iqm,
     bootstrap_probability_of_improvement,
+    bootstrap_task_mean,
     iqm,
     probability_of_improvement,
+    task_mean,
 )
 from harness.stats.boundaries import (
     BOUNDARY_KINDS,
@@ -40,6 +42,7 @@ from harness.stats.equivalence import (
 )
 from harness.stats.max_statistic import MaxStatisticResult, max_statistic_test
 from harness.stats.multiple import AdjustedPValues, HolmResult, benjamini_hochberg, holm
+from harness.stats.profile import PerformanceProfile, bootstrap_performance_profile, performance_profile
 from harness.stats.power import minimum_detectable_difference, power_of, seeds_needed
 from harness.stats.proportion import BinomialRate
 from harness.stats.rank import (
@@ -74,6 +77,7 @@ __all__ = [
     "HolmResult",
     "MannWhitneyResult",
     "MaxStatisticResult",
+    "PerformanceProfile",
     "PermutationResult",
     "SequentialBoundaries",
     "SequentialLook",
@@ -85,7 +89,9 @@ __all__ = [
     "bootstrap_iqm",
     "bootstrap_mean",
     "bootstrap_mean_difference",
+    "bootstrap_performance_profile",
     "bootstrap_probability_of_improvement",
+    "bootstrap_task_mean",
     "equivalence_test",
     "equivalence_test_from_stats",
     "exit_probabilities",
@@ -95,6 +101,7 @@ __all__ = [
     "mann_whitney_censored",
     "max_statistic_test",
     "minimum_detectable_difference",
+    "performance_profile",
     "permutation_test_means",
     "power_of",
     "probability_of_improvement",
@@ -106,6 +113,7 @@ __all__ = [
     "sequential_plan",
     "sequential_test",
     "spending_function",
+    "task_mean",
     "welch_test",
     "welch_test_from_stats",
 ]

@@ -1,4 +1,5 @@
-"""Robust aggregates of per-seed scores: interquartile mean and probability of improvement, with intervals."""
+"""Aggregates of per-seed scores across tasks: mean of task means, interquartile mean and
+probability of improvement, with (stratified) bootstrap intervals (Agarwal et al. 2021)."""
 
 from __future__ import annotations
 
@@ -6,13 +7,15 @@ import numpy as np
 from scipy import stats as _st
 
 from harness.stats._validate import as_sample
-from harness.stats.bootstrap import BootstrapResult, bootstrap_ci
+from harness.stats.bootstrap import BootstrapResult, _strata_groups, bootstrap_ci
 
 __all__ = [
     "bootstrap_iqm",
+    "bootstrap_task_mean",
     "bootstrap_probability_of_improvement",
     "iqm",
     "probability_of_improvement",
+    "task_mean",
 ]
 
 
@@ -154,3 +157,59 @@ def bootstrap_probability_of_improvement(
     return bootstrap_ci(
         (xs, ys), per_task, method=method, strata=(tasks_x, tasks_y), **options
     )
+
+
+def _task_positions(n: int, tasks: object) -> list[np.ndarray]:
+    return [np.arange(n)] if tasks is None else _strata_groups(tasks, n, "tasks")
+
+
+def _mean_of_groups(groups: list[np.ndarray]):
+    def statistic(x: np.ndarray, axis: int = -1) -> np.ndarray:
+        return np.mean([np.mean(x[..., g], axis=-1) for g in groups], axis=0)
+
+    return statistic
+
+
+def task_mean(scores: object, *, tasks: object = None) -> float:
+    """Mean over tasks of each task's mean score: every task weighs the same, whatever its seeds.
+
+    Without ``tasks`` it is the plain mean. This is the "mean" aggregate of
+    Agarwal et al. (2021), who average normalised scores over runs and tasks
+    with the same number of runs per task.
+
+    References
+    ----------
+    .. [1] Agarwal, R. et al. (2021). Deep reinforcement learning at the edge of
+       the statistical precipice. NeurIPS 34.
+
+    Examples
+    --------
+    >>> task_mean([0.0, 1.0, 1.0, 4.0], tasks=["a", "a", "b", "b"])  # (0.5 + 2.5) / 2
+    1.5
+    """
+    x = as_sample(scores, "scores", min_size=1)
+    return float(_mean_of_groups(_task_positions(x.size, tasks))(x))
+
+
+def bootstrap_task_mean(
+    scores: object, *, tasks: object = None, method: str = "percentile", **options: object
+) -> BootstrapResult:
+    """Bootstrap interval of :func:`task_mean`, resampling runs within each task when ``tasks`` is given.
+
+    The stratified bootstrap of Agarwal et al. (2021): each resample draws every
+    task's runs with replacement from that task's own runs, so the set of tasks
+    is fixed and only the run-to-run noise is resampled. ``method`` and
+    ``options`` as in :func:`~harness.stats.bootstrap.bootstrap_ci`; with tasks
+    only the percentile method is offered (BCa's jackknife deletes single runs,
+    which would shift the task positions the statistic reads).
+
+    References
+    ----------
+    .. [1] Agarwal, R. et al. (2021). NeurIPS 34.
+    .. [2] Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Bootstrap.
+    """
+    x = as_sample(scores, "scores")
+    if tasks is not None and method != "percentile":
+        raise ValueError(f"`method` must be 'percentile' when tasks are given (BCa's jackknife would shift the "
+                         f"task positions), got {method!r}")
+    return bootstrap_ci(x, _mean_of_groups(_task_positions(x.size, tasks)), method=method, strata=tasks, **options)
