@@ -7,6 +7,7 @@ import math
 import gymnasium
 import pytest
 
+from harness.core.config import resolve
 from harness.core.errors import ConfigError, ManifestError
 from harness.manifest.loader import parse_manifest
 from harness.manifest.policy import DEFAULT_MARGIN_SHARE, GatePolicy, PublishedReference
@@ -78,8 +79,9 @@ def test_share_margin_needs_floor_and_threshold():
     ],
 )
 def test_bad_check_tables(table, match):
+    # Read as the manifest loader reads [check]: through the settings resolver.
     with pytest.raises(ConfigError, match=match):
-        GatePolicy.from_table(table)
+        resolve(GatePolicy, table, key="check")
 
 
 def test_overrides_from_the_command_line():
@@ -103,12 +105,12 @@ def test_reference_sd_or_se():
         PublishedReference(metric="final", mean=1.0, sd=1.0, seeds=1, source="s")
     with pytest.raises(ConfigError, match=r"\[source\]: must name where"):
         PublishedReference(metric="final", mean=1.0, sd=1.0, seeds=5, source=" ")
-    with pytest.raises(ConfigError, match=r"\[se\]: must not be negative"):
+    with pytest.raises(ConfigError, match=r"\[se\]: must be a non-negative finite number, got -1.0"):
         PublishedReference(metric="final", mean=1.0, se=-1.0, seeds=5, source="s")
     with pytest.raises(ConfigError, match=r"\[reference.seeds\]: is required"):
-        PublishedReference.from_table({"metric": "final", "mean": 1.0, "sd": 1.0, "source": "s"})
-    assert math.isfinite(PublishedReference.from_table(
-        {"metric": "auc", "mean": 1.0, "sd": 0.0, "seeds": 3, "source": "s"}).std)
+        resolve(PublishedReference, {"metric": "final", "mean": 1.0, "sd": 1.0, "source": "s"}, key="reference")
+    assert math.isfinite(resolve(PublishedReference,
+                                 {"metric": "auc", "mean": 1.0, "sd": 0.0, "seeds": 3, "source": "s"}).std)
 
 
 def test_manifest_tables_resolve_to_policy_and_references():

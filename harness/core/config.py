@@ -86,8 +86,12 @@ def _range_words(low: float, high: float, open_low: bool, open_high: bool, integ
         return f"an integer in [{low:g}, {high:g}]"
     if (low, high) == (-math.inf, math.inf):
         return "a finite number"
-    if (low, high, open_low) == (0, math.inf, True):
-        return "a positive finite number"
+    if high == math.inf:
+        if low == 0:
+            return "a positive finite number" if open_low else "a non-negative finite number"
+        return f"a finite number {'above' if open_low else 'of at least'} {low:g}"
+    if low == -math.inf:
+        return f"a finite number {'below' if open_high else 'of at most'} {high:g}"
     if open_low and open_high and math.isfinite(low) and math.isfinite(high):
         return f"a number strictly between {low:g} and {high:g}"
     return f"a number in {'(' if open_low else '['}{low:g}, {high:g}{')' if open_high else ']'}"

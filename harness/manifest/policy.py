@@ -7,8 +7,9 @@ paper (mean, sd or standard error, number of seeds, where it was published),
 against which a rerun can be tested instead of a stored baseline.
 
 Both are frozen values; ``__post_init__`` raises
-:class:`harness.core.errors.ConfigError` naming the key, and ``from_table`` also
-rejects unknown keys with a "did you mean" hint.
+:class:`harness.core.errors.ConfigError` naming the key. A manifest's tables are
+read into them by the settings resolver (``harness.core.config.resolve``), which
+also rejects unknown keys with a "did you mean" hint.
 
 The margin
 ----------
@@ -29,6 +30,7 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
+from harness.core.config import check_number
 from harness.core.errors import ConfigError, did_you_mean
 
 __all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "GatePolicy", "PublishedReference"]
@@ -38,38 +40,6 @@ KNOWN_METRICS = ("final", "auc", "steps-to-threshold")
 
 #: Default margin: a tenth of the span between random-policy return and reward threshold.
 DEFAULT_MARGIN_SHARE = 0.1
-
-
-def _is_number(value: object) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def _require_fraction(value: object, key: str, *, open_low: bool = True, upper: float = 1.0) -> None:
-    if not _is_number(value) or not math.isfinite(value) or not (0 < value < upper if open_low else 0 <= value < upper):
-        raise ConfigError(f"must be a number strictly between 0 and {upper:g}, got {value!r}", key=key)
-
-
-def _require_optional_finite(value: object, key: str, *, positive: bool = False) -> None:
-    if value is None:
-        return
-    if not _is_number(value) or not math.isfinite(value) or (positive and value <= 0):
-        kind = "a positive finite number" if positive else "a finite number"
-        raise ConfigError(f"must be {kind}, got {value!r}", key=key)
-
-
-def _from_table(cls: type, table: Mapping[str, Any], section: str) -> Any:
-    names = [f.name for f in dataclasses.fields(cls)]
-    for key in table:
-        if key not in names:
-            raise ConfigError(f"unknown key {key!r}.{did_you_mean(key, names)}", key=f"{section}.{key}")
-    values = dict(table)
-    for field in dataclasses.fields(cls):
-        if field.name in values and isinstance(values[field.name], list):
-            values[field.name] = tuple(values[field.name])
-    try:
-        return cls(**values)
-    except ConfigError as exc:
-        raise ConfigError(str(exc).split(": ", 1)[-1], key=f"{section}.{exc.key}") from None
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -138,12 +108,14 @@ class GatePolicy:
         if len(set(self.metrics)) != len(self.metrics):
             raise ConfigError(f"lists a metric twice: {list(self.metrics)}", key="metrics")
         object.__setattr__(self, "metrics", tuple(self.metrics))
-        _require_fraction(self.alpha, "alpha", upper=0.5)
-        _require_optional_finite(self.margin, "margin", positive=True)
-        _require_optional_finite(self.floor, "floor")
-        _require_optional_finite(self.threshold, "threshold")
+        check_number(self.alpha, "alpha", low=0, high=0.5, open_low=True, open_high=True)
+        if self.margin is not None:
+            check_number(self.margin, "margin", low=0, open_low=True)
+        for key in ("floor", "threshold"):
+            if getattr(self, key) is not None:
+                check_number(getattr(self, key), key)
         if self.margin_share is not None:
-            _require_fraction(self.margin_share, "margin_share")
+            check_number(self.margin_share, "margin_share", low=0, high=1, open_low=True, open_high=True)
         if self.margin is not None and self.margin_share is not None:
             raise ConfigError("give either `margin` (absolute) or `margin_share`, not both", key="margin")
         if not isinstance(self.margins, Mapping):
@@ -151,20 +123,14 @@ class GatePolicy:
         for name, value in self.margins.items():
             if name not in KNOWN_METRICS:
                 raise ConfigError(f"unknown metric {name!r}.{did_you_mean(str(name), KNOWN_METRICS)}", key="margins")
-            _require_optional_finite(value, f"margins.{name}", positive=True)
+            check_number(value, f"margins.{name}", low=0, open_low=True)
         object.__setattr__(self, "margins", dict(self.margins))
         for key in ("ignore_small", "strict", "bitwise", "allow_nondeterminism", "locate"):
             if not isinstance(getattr(self, key), bool):
                 raise ConfigError(f"must be true or false, got {getattr(self, key)!r}", key=key)
-        _require_fraction(self.final_share, "final_share", upper=1.0 + 1e-12)
-        _require_fraction(self.power, "power")
-        if isinstance(self.permutations, bool) or not isinstance(self.permutations, int) or self.permutations < 99:
-            raise ConfigError(f"must be an integer of at least 99, got {self.permutations!r}", key="permutations")
-
-    @classmethod
-    def from_table(cls, table: Mapping[str, Any], *, section: str = "check") -> GatePolicy:
-        """Build from a manifest's ``[check]`` table, rejecting unknown keys."""
-        return _from_table(cls, table, section)
+        check_number(self.final_share, "final_share", low=0, high=1, open_low=True)
+        check_number(self.power, "power", low=0, high=1, open_low=True, open_high=True)
+        check_number(self.permutations, "permutations", low=99, integer=True)
 
     def to_json(self) -> dict:
         data = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
@@ -256,18 +222,13 @@ class PublishedReference:
     def __post_init__(self) -> None:
         if self.metric not in KNOWN_METRICS:
             raise ConfigError(f"unknown metric {self.metric!r}.{did_you_mean(str(self.metric), KNOWN_METRICS)}", key="metric")
-        _require_optional_finite(self.mean, "mean")
         if self.mean is None:
             raise ConfigError("is required: the published mean", key="mean")
+        check_number(self.mean, "mean")
         if (self.sd is None) == (self.se is None):
             raise ConfigError("give exactly one of `sd` (standard deviation) or `se` (standard error)", key="sd")
-        _require_optional_finite(self.sd, "sd")
-        _require_optional_finite(self.se, "se")
-        spread = self.sd if self.sd is not None else self.se
-        if spread < 0:
-            raise ConfigError(f"must not be negative, got {spread!r}", key="sd" if self.sd is not None else "se")
-        if isinstance(self.seeds, bool) or not isinstance(self.seeds, int) or self.seeds < 2:
-            raise ConfigError(f"must be an integer of at least 2, got {self.seeds!r}", key="seeds")
+        check_number(self.sd if self.sd is not None else self.se, "sd" if self.sd is not None else "se", low=0)
+        check_number(self.seeds, "seeds", low=2, integer=True)
         if not isinstance(self.source, str) or not self.source.strip():
             raise ConfigError("must name where the numbers were published (authors, year, table)", key="source")
 
@@ -275,14 +236,6 @@ class PublishedReference:
     def std(self) -> float:
         """The standard deviation across seeds (from ``se`` as ``se * sqrt(seeds)`` if needed)."""
         return float(self.sd) if self.sd is not None else float(self.se) * math.sqrt(self.seeds)
-
-    @classmethod
-    def from_table(cls, table: Mapping[str, Any], *, section: str = "reference") -> PublishedReference:
-        """Build from one ``[[reference]]`` table, rejecting unknown and missing keys."""
-        for key in ("metric", "mean", "seeds", "source"):
-            if key not in table:
-                raise ConfigError(f"is required ({cls.__doc__.splitlines()[0].strip()})", key=f"{section}.{key}")
-        return _from_table(cls, table, section)
 
     def to_json(self) -> dict:
         return dataclasses.asdict(self)
