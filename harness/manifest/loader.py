@@ -83,8 +83,8 @@ class _TrainerTable:
         elif self.settings is not None:
             raise ConfigError("a command takes no [trainer.settings]: pass values as arguments in `command`",
                               key="settings")
-        if self.time_limit is not None and not self.time_limit > 0:
-            raise ConfigError(f"must be a positive number of seconds, got {self.time_limit!r}", key="time_limit")
+        if self.time_limit is not None:
+            config.check_number(self.time_limit, "time_limit", low=0, open_low=True)
 
     def command_table(self) -> dict[str, Any]:
         """The keys :class:`~harness.trainers.command.CommandSettings` takes, as given."""
