@@ -14,6 +14,9 @@ from pathlib import Path
 from rich.console import Console
 
 from harness.cli import ExitCode, main
+from harness.execute.work import installed_versions
+from harness.store.baseline import read_baseline
+from harness.store.results import TRAINER_SOURCE
 
 ORCHARD = Path(__file__).resolve().parents[1] / "examples" / "orchard"
 
@@ -33,10 +36,14 @@ def _copy(tmp_path: Path, monkeypatch) -> Path:
 
 
 def test_the_recorded_example_verifies_from_scratch_bitwise_identical(tmp_path, monkeypatch):
-    _copy(tmp_path, monkeypatch)
+    folder = _copy(tmp_path, monkeypatch)
     code, out = _cli("verify", "orchard.toml", "--fresh", "--workers", "2")
     assert code == ExitCode.OK, out
-    assert "every seed's curve is bitwise identical to the baseline" in out
+    recorded = read_baseline(folder / "baselines" / "orchard-irrigation.json").versions
+    if all(installed_versions().get(k) == v for k, v in recorded.items() if k != TRAINER_SOURCE):
+        assert "every seed's curve is bitwise identical to the baseline" in out
+    else:  # other NumPy/BLAS than at recording (CI's minimum-versions run): the statistics decide alone
+        assert "installed versions differ" in out
 
 
 def test_the_planted_bug_fails_the_gate_with_the_metric_named(tmp_path, monkeypatch):
