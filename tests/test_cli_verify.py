@@ -168,7 +168,7 @@ def test_broken_learning_rule_is_worse_and_fails(at):
     assert code == ExitCode.GATE_FAILED, out
     assert "config hash differs (1 key changed: trainer)" in out
     assert '"tabular-q"' in out and '"broken_rule:train"' in out
-    assert "final is significantly worse" in out
+    assert "final fails rule drop-beyond-margin" in out
     assert "exact check skipped: the configuration differs" in out
     assert "the candidate first falls significantly below between steps" in out
     suite = ET.parse(at / "out/broken.xml").getroot()
@@ -223,7 +223,7 @@ def test_published_reference_checked_against_rerun(at):
     (at / "refs.toml").write_text(manifest_text("toy-refs", extra=impossible))
     code, out = cli(at, "verify", "refs.toml", "--results", "results/refs", "--no-run")
     assert code == ExitCode.GATE_FAILED, out
-    assert "significantly worse" in out
+    assert "significantly worse" in out or "fails rule drop-beyond-margin" in out
 
 
 def _final_values(path: Path) -> list[float]:
@@ -333,3 +333,42 @@ def test_nondeterministic_trainer_fails_the_gate(at):
     code, out = cli(at, "verify", "relaxed.toml", "--workers", "2", "--fresh", "--results", "results/nondet")
     assert code == ExitCode.OK, out
     assert "nondeterminism" in out and "allowed by the policy" in out
+
+
+# --- issue 10: the gate policy is validated before anything runs; the rule is reported ---------
+
+
+def test_record_refuses_a_baseline_too_small_for_its_checks(at):
+    # Issue 10 item 4: 2 seeds per side can never reach alpha = 0.05 in the where-the-curves-part
+    # permutation test (smallest p = 1/C(4, 2) = 1/6; Fisher 1935): refused at record, not at verify.
+    (at / "two.toml").write_text(manifest_text("two").replace("count = 6", "count = 2"))
+    code, out = cli(at, "record", "two.toml")
+    assert code == ExitCode.BAD_INPUT, out
+    assert "two.toml [seeds.count]: the manifest has 2 seeds" in out and "at least 3" in out
+    assert "locate = false" in out
+    assert not (at / "results" / "two").exists() and not (at / "baselines" / "two.json").exists()
+
+
+@pytest.mark.parametrize("command", ["run", "record", "verify", "calibrate"])
+def test_every_training_command_validates_the_gate_policy_first(at, command):
+    # A margin that cannot be sized (floor equal to threshold) is a bad manifest before any training.
+    text = manifest_text("flat").replace("count = 6", "count = 4") + "[check]\nfloor = 0.7\nthreshold = 0.7\n"
+    (at / "flat.toml").write_text(text)
+    code, out = cli(at, command, "flat.toml")
+    assert code == ExitCode.BAD_INPUT, out
+    assert "flat.toml [check.margin]: cannot size the margin of 'final'" in " ".join(out.split())
+    assert not (at / "results" / "flat").exists() and not (at / "results" / "flat-calibration").exists()
+
+
+def test_rule_is_selectable_and_reported(at):
+    code, out = cli(at, "verify", "toy.toml", "--no-run", "--results", "results/toy", "--rule", "any-drop",
+                    "--json", "out/rule.json", "--junit", "out/rule.xml")
+    assert code == ExitCode.OK, out
+    assert "policy: rule any-drop (fails when the drop is significant, however small)" in " ".join(out.split())
+    data = json.loads((at / "out" / "rule.json").read_text())
+    assert data["gate"]["rule"] == "any-drop" and data["policy"]["rule"] == "any-drop"
+    assert [m["unit"] for m in data["margins"]] == ["return", "return"]
+    props = {p.get("name"): p.get("value") for p in ET.parse(at / "out" / "rule.xml").getroot().iter("property")}
+    assert props["rule"] == "any-drop"
+    code, out = cli(at, "verify", "toy.toml", "--no-run", "--results", "results/toy", "--ignore-small")
+    assert code == ExitCode.BAD_INPUT and "--ignore-small was replaced by --rule" in out

@@ -51,5 +51,5 @@ def test_the_planted_bug_fails_the_gate_with_the_metric_named(tmp_path, monkeypa
     shutil.copy(folder / "irrigate_buggy.py", folder / "irrigate.py")
     code, out = _cli("verify", "orchard.toml", "--workers", "2")
     assert code == ExitCode.GATE_FAILED, out
-    assert "gate: final is significantly worse" in out and "gate: auc is significantly worse" in out
+    assert "gate: final fails rule drop-beyond-margin" in out and "gate: auc fails rule drop-beyond-margin" in out
     assert "the trainer's source code changed since the baseline" in out.replace("\n", " ")

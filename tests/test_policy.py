@@ -32,7 +32,7 @@ def test_defaults():
     p = GatePolicy()
     # alpha = 0.05 and power = 0.8 are common practice (Cohen 1988 uses both as conventions).
     assert (p.metrics, p.alpha, p.power) == (("final", "auc"), 0.05, 0.8)
-    assert (p.margin, p.margin_share, p.strict, p.ignore_small) == (None, None, False, False)
+    assert (p.margin, p.margin_share, p.strict, p.rule) == (None, None, False, "drop-beyond-margin")
     assert DEFAULT_MARGIN_SHARE == 0.1
 
 

@@ -96,7 +96,7 @@ def test_marker_passes_and_summary_says_what_a_pass_means(project):
     result.stdout.fnmatch_lines([
         "*rl-harness verdicts*",
         "*test_gate.py::test_lake: gate PASSED for lake*curves bitwise identical.",
-        "A pass means no check found the candidate significantly worse*",
+        "A pass means no check found the candidate worse than its reference under the gate's rule*",
     ])
 
 
@@ -114,7 +114,7 @@ def test_failed_gate_fails_the_test_with_the_explanation(project):
     result.stdout.fnmatch_lines([
         "*gate FAILED for lake-ref: 1 worse.",
         "*final vs reference 1 (a deliberately unreachable number (this test)): significantly worse*",
-        "*gate: final vs reference 1 (a deliberately unreachable number (this test)) is significantly worse*",
+        "*gate: final vs reference 1 (a deliberately unreachable number (this test)) fails rule drop-beyond-margin*",
     ])
 
 

@@ -54,7 +54,7 @@ def test_terminal_report_is_readable_without_colour(verdicts):
     assert text.startswith("FAILED  gate FAILED for toy: 2 worse.")
     assert "version drift" in text and "2.1" in text and "2.2" in text
     assert "exact check skipped: installed versions differ (numpy 2.1 -> 2.2)" in text
-    assert "final is significantly worse" in text
+    assert "final fails rule drop-beyond-margin" in text and "policy: rule drop-beyond-margin" in text
     assert "the candidate first falls significantly below between steps 200 and 400" in text
     assert " ".join(WHAT_A_PASS_MEANS.split()) in " ".join(text.split())
     console = Console(file=StringIO(), width=100, record=True, color_system=None)
@@ -81,7 +81,7 @@ def test_markdown_report(verdicts):
     header = next(line for line in lines if line.startswith("| check |"))
     assert header == "| check | baseline | candidate | difference [interval] | margin | p (Holm) | verdict |"
     rows = [line for line in lines if line.startswith("| final |") or line.startswith("| auc |")]
-    assert len(rows) == 2 and all(r.count("|") == 8 for r in rows) and "**worse**" in rows[0]
+    assert len(rows) == 2 and all(r.count("|") == 8 for r in rows) and "**worse (beyond margin)**" in rows[0]
     assert "| numpy | 2.1 | 2.2 |" in md
     assert f"_{WHAT_A_PASS_MEANS}_" in md
     assert render_markdown(same).startswith("## ✅ rl-harness: gate passed for `toy`")
@@ -112,7 +112,8 @@ def test_junit_one_testcase_per_check(verdicts):
     failing = [c.get("name") for c in suite.iter("testcase") if c.find("failure") is not None]
     assert failing == ["check final", "check auc"]
     props = {p.get("name"): p.get("value") for p in suite.iter("property")}
-    assert props == {"what_a_pass_means": WHAT_A_PASS_MEANS, "gate": "failed"}
+    assert props["what_a_pass_means"] == WHAT_A_PASS_MEANS and props["gate"] == "failed"
+    assert props["rule"] == "drop-beyond-margin" and props["policy"].startswith("rule drop-beyond-margin")
     ok = ET.fromstring(render_junit(same))
     assert ok.get("failures") == "0"
 

@@ -37,3 +37,25 @@ def test_manifest_has_a_matching_baseline_and_pins(path):
     registered = gymnasium.spec(manifest.task.id).max_episode_steps
     assert manifest.task.max_episode_steps == registered or registered is None or \
         "episode_step_limit" in path.read_text()
+
+
+@pytest.mark.parametrize("path", MANIFESTS, ids=lambda p: p.stem)
+def test_shipped_gate_policy_is_valid_and_passes_its_own_baseline(path):
+    # The whole gate policy validates before any run (margins in each metric's unit, seed counts of
+    # manifest and baseline), and the baseline's own curves against themselves pass the gate under
+    # every rule: identical data is no evidence of a drop.
+    import dataclasses
+
+    from harness.gate.curveset import CurveSet
+    from harness.gate.verify import check_gate_policy, verify_sets
+    from harness.stats import DROP_RULES
+
+    manifest = load_manifest(path)
+    baseline = read_baseline(ROOT / "baselines" / f"{manifest.name}.json", manifest_name=manifest.name)
+    scale = check_gate_policy(manifest, baseline=baseline)
+    assert [m.metric for m in scale.margins] == list(manifest.check.metrics)
+    curves = CurveSet.from_baseline(baseline)
+    for rule in DROP_RULES:
+        verdict = verify_sets(curves, curves, dataclasses.replace(manifest.check, rule=rule), scale=scale)
+        assert verdict.passed and verdict.gate.rule == rule
+        assert all(c.estimate == 0.0 for c in verdict.checks)

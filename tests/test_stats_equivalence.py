@@ -110,3 +110,10 @@ def test_tost_rejects_iff_interval_inside_margin(a, b, m, alpha):
     # The same (1 - 2 alpha) interval is Welch's interval at that level.
     w = welch_test(a, b).confidence_interval(1 - 2 * alpha)
     assert (w.low, w.high) == pytest.approx((ci.low, ci.high), rel=1e-9, abs=1e-9)
+
+
+def test_same_constant_over_different_counts_is_equivalent_at_difference_zero():
+    # Issue 10 item 3: ten and twenty-four seeds all at 0.74 differ only by rounding of the means
+    # (exact arithmetic, common practice): difference 0, inside any margin.
+    r = equivalence_test([0.74] * 10, [0.74] * 24, margin=0.01)
+    assert r.estimate == 0.0 and r.standard_error == 0.0 and r.equivalent

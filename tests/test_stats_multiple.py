@@ -112,3 +112,13 @@ def test_max_statistic_iv():
         max_statistic_test(np.zeros((2, 3)), b)
     with pytest.raises(ValueError, match=r"`curves_a` must be 2-D"):
         max_statistic_test(np.zeros(3), np.zeros((2, 3)))
+
+
+def test_max_statistic_rounding_noise_is_not_a_difference():
+    # Issue 10 item 3: curves that are the same constants, computed so that the float values differ
+    # in the last bit (0.1 * 3 vs 0.3), have t = 0, not a t of 1e15 (exact arithmetic, common practice).
+    a = np.full((10, 3), 0.1 * 3)
+    b = np.full((12, 3), 0.3)
+    assert a[0, 0] != b[0, 0]
+    r = max_statistic_test(a, b, alternative="less", n_resamples=199, rng=3)
+    assert r.statistics == (0.0, 0.0, 0.0) and min(r.adjusted_pvalues) == 1.0

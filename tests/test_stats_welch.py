@@ -139,3 +139,57 @@ def test_swapping_groups_negates_the_estimate(a, b):
     assert ab.interval.contains(ab.estimate)
     g = welch_test(a, b, alternative="greater")
     assert g.pvalue == pytest.approx(welch_test(b, a, alternative="less").pvalue, rel=1e-9, abs=1e-12)
+
+
+# --- rounding noise (issue 10, item 3) -------------------------------------------------------
+# The same constant averaged over 10 and over 24 values: the two float means differ in the last
+# bit (sum of ten 0.74 != 10 * 0.74). Exact arithmetic (common practice) says the groups are
+# identical: difference 0, no evidence of any difference.
+
+
+def test_same_constant_over_different_counts_is_not_a_difference():
+    a, b = [0.74] * 10, [0.74] * 24
+    assert float(np.mean(a)) != float(np.mean(b))  # the rounding this test is about
+    for alternative in ("two-sided", "less", "greater"):
+        r = welch_test(a, b, alternative=alternative)
+        assert r.estimate == 0.0 and r.statistic == 0.0 and r.standard_error == 0.0
+    assert welch_test(a, b).pvalue == 1.0
+    assert welch_test(a, b, alternative="less").pvalue >= 0.5
+
+
+def test_near_constant_data_never_gives_a_huge_t():
+    # One value one ulp above the rest: a spread of 1e-17 next to values of 0.74 is rounding.
+    a = [0.74] * 9 + [float(np.nextafter(0.74, 1.0))]
+    r = welch_test(a, [0.74] * 24)
+    assert abs(r.statistic) < 10.0 and r.pvalue == 1.0
+
+
+def test_rounding_tolerance_does_not_hide_a_real_small_difference():
+    # 1e-9 on values near 0.74 is 6 million ulps: a real difference (both groups constant).
+    r = welch_test([0.74 + 1e-9] * 10, [0.74] * 24, alternative="greater")
+    assert r.estimate == pytest.approx(1e-9, rel=1e-6) and r.pvalue == 0.0
+
+
+# --- shifted null (the test behind the drop-beyond-margin rule) ----------------------------
+
+
+@pytest.mark.parametrize("alternative", ["less", "greater", "two-sided"])
+def test_null_difference_matches_scipy_on_shifted_data(alternative):
+    # H0: mean(a) - mean(b) = d0 is H0: mean(a - d0) - mean(b) = 0: scipy.stats.ttest_ind
+    # (equal_var=False) on a - d0 is the reference.
+    rng = np.random.default_rng(11)
+    a, b = rng.normal(0.0, 1.0, 12), rng.normal(0.5, 2.0, 9)
+    ours = welch_test(a, b, alternative=alternative, null_difference=-0.8)
+    ref = sps.ttest_ind(a + 0.8, b, equal_var=False, alternative=alternative)
+    assert ours.statistic == pytest.approx(ref.statistic, rel=1e-12)
+    assert ours.pvalue == pytest.approx(ref.pvalue, rel=1e-10)
+    assert ours.estimate == pytest.approx(a.mean() - b.mean(), rel=1e-12)
+    assert "null difference of -0.8" in ours.reading
+    summary = welch_test_from_stats(a.mean(), a.std(ddof=1), 12, b.mean(), b.std(ddof=1), 9,
+                                    alternative=alternative, null_difference=-0.8)
+    assert summary.pvalue == pytest.approx(ref.pvalue, rel=1e-9)
+
+
+def test_null_difference_iv():
+    with pytest.raises(ValueError, match="`null_difference` must be finite"):
+        welch_test([1.0, 2.0], [3.0, 4.0], null_difference=float("nan"))

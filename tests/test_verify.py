@@ -14,13 +14,14 @@ from scipy import stats as st
 from harness.store.baseline import SeedCurve
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
-from harness.core.errors import BaselineError, ResultsError, RunFailedError
+from harness.core.errors import BaselineError, ConfigError, ResultsError, RunFailedError
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.core.seeding import plan_seeds
 from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.store.results import TRAINER_SOURCE
 from harness.store.results import ResultSet, RunRecord
-from harness.gate.verify import decide, verify_sets
+from harness.gate.compare import decide
+from harness.gate.verify import verify_sets
 
 # NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.3, AUTO83B data (published raw data;
 # see tests/CHECK-VALUES.md): miles per gallon of US and Japanese cars.
@@ -126,8 +127,9 @@ def test_inconclusive_reports_detectable_difference_and_seeds():
     base, cand = _pair(0.0, n=4)
     (check,) = verify_sets(base, cand, dataclasses.replace(POLICY, margin=0.5)).checks
     assert check.verdict == "inconclusive"
-    assert "seeds per side would detect one as large as the margin" in check.reading
-    # More seeds are needed for a smaller effect: the margin is far below the detectable difference.
+    # Under the default rule (drop-beyond-margin) a drop is caught once it is significantly beyond the
+    # margin: the seeds figure is for a drop of twice the margin, the detectable drop includes the margin.
+    assert "seeds per side would detect a drop of 1." in check.reading and check.target == 1.0
     assert check.detectable > check.margin and check.seeds_needed > 4
 
 
@@ -135,10 +137,13 @@ def test_gate_policies():
     base, cand = _pair(-3.0, n=40)
     worse = verify_sets(base, cand, dataclasses.replace(POLICY, margin=10.0))
     (check,) = worse.checks
-    assert check.verdict == "worse" and check.within_margin
-    assert not worse.passed
-    lenient = decide(worse.checks, dataclasses.replace(POLICY, margin=10.0, ignore_small=True))
-    assert lenient.passed and "within the margin, ignored by policy: final" in lenient.reasons[0]
+    assert check.verdict == "worse" and check.within_margin and not check.beyond_margin
+    # The default rule lets a significant drop inside the margin pass, and says so; any-drop fails it.
+    assert worse.passed and worse.gate.rule == "drop-beyond-margin"
+    assert "significantly worse but not failing rule drop-beyond-margin: final" in worse.gate.reasons[0]
+    strictest = decide(worse.checks, dataclasses.replace(POLICY, margin=10.0, rule="any-drop"))
+    assert not strictest.passed and strictest.rule == "any-drop" and "fails rule any-drop" in strictest.reasons[0]
+    assert decide(worse.checks, dataclasses.replace(POLICY, margin=10.0, rule="interval-past-margin")).passed
     base, cand = _pair(0.0, n=4)
     unsure = verify_sets(base, cand, dataclasses.replace(POLICY, margin=0.5))
     assert unsure.checks[0].verdict == "inconclusive" and unsure.passed
@@ -331,3 +336,86 @@ def test_swapping_sides_swaps_worse_and_better(shift, seed):
         assert b.verdict == mirror[f.verdict]
         assert b.estimate == pytest.approx(-f.estimate)
         assert (b.pvalue_worse, b.pvalue_better) == pytest.approx((f.pvalue_better, f.pvalue_worse))
+
+
+# --- issue 10: rounding noise, too few seeds, margins in each metric's units -------------------
+
+
+def test_same_constant_success_rate_is_not_worse_at_the_gate():
+    # Issue 10 item 3: 10 and 24 seeds that all score 0.74 differ only in the rounding of their
+    # means (exact arithmetic: no difference; common practice). Today's code called it worse (p ~ 8e-5).
+    for rule in ("any-drop", "drop-beyond-margin"):
+        policy = dataclasses.replace(POLICY, margin=0.05, rule=rule)
+        verdict = verify_sets(curve_set(np.full((10, 3), 0.74)), curve_set(np.full((24, 3), 0.74)), policy)
+        assert verdict.checks and all(c.verdict == "equivalent" for c in verdict.checks)
+        assert all(c.estimate == 0.0 for c in verdict.checks) and verdict.passed
+
+
+def test_two_seeds_per_side_cannot_tell_where_curves_part():
+    # Issue 10 item 4: with 2 vs 2 seeds the exact permutation test's smallest p-value is 1/C(4, 2) = 1/6
+    # (Fisher 1935), so "the curves do not part" would be a false reassurance.
+    base = curve_set([[0.0, 10.0, 20.0], [0.0, 11.0, 21.0]])
+    cand = curve_set([[0.0, 0.0, 0.0], [0.0, 1.0, 1.0]])
+    div = verify_sets(base, cand, dataclasses.replace(POLICY, margin=1.0)).divergence
+    assert div.seeds_needed == 3 and not div.found
+    assert "cannot tell where the curves part with 2 vs 2 seeds (needs 3 per side)" in div.reading
+    assert "do not part" not in div.reading
+    three = verify_sets(curve_set(np.vstack([base.curve_matrix(), [[0.0, 12.0, 22.0]]])),
+                        curve_set(np.vstack([cand.curve_matrix(), [[0.0, 2.0, 2.0]]])),
+                        dataclasses.replace(POLICY, margin=1.0)).divergence
+    assert three.seeds_needed is None and three.found  # 1/C(6, 3) = 0.05 can reach alpha
+
+
+def test_minimum_seeds_per_check_of_a_policy():
+    from harness.gate.verify import minimum_seeds
+
+    needs = minimum_seeds(GatePolicy(margin=1.0))
+    assert sorted(needs.values()) == [2, 2, 3]  # Welch, Welch, permutation (1/C(6, 3) = 0.05)
+    assert sorted(minimum_seeds(GatePolicy(margin=1.0, locate=False)).values()) == [2, 2]
+    # Gehan with two censored seeds tied, normal approximation (scipy.stats.mannwhitneyu, see
+    # tests/test_stats_resolution.py), at Holm's first step 0.05 / 2: 3 per side reach 0.038, 4 reach 0.0147.
+    steps = minimum_seeds(GatePolicy(metrics=("final", "steps-to-threshold"), locate=False, threshold=1.0))
+    assert max(steps.values()) == 4
+
+
+def test_absolute_margin_is_in_units_of_return_not_env_steps():
+    # Issue 10 item 5: a return margin of 20 must not allow 20 env steps for steps-to-threshold;
+    # its default is a share of the budget (docs/manifest.md).
+    from harness.gate.margins import gate_scale
+
+    policy = GatePolicy(metrics=("final", "steps-to-threshold"), margin=20.0, threshold=0.5)
+    assert policy.margin_for("steps-to-threshold", floor=None, threshold=0.5, budget=50_000) == 5_000.0
+    scale = gate_scale(policy, budget=50_000)
+    assert [m.text for m in scale.margins] == ["final ±20 return (margin)",
+                                               "steps-to-threshold ±5000 env steps (0.1 of the budget)"]
+    own = GatePolicy(metrics=("steps-to-threshold",), margins={"steps-to-threshold": 800.0}, threshold=0.5)
+    assert gate_scale(own, budget=50_000).margin("steps-to-threshold") == 800.0
+
+
+def test_policy_line_names_the_rule_and_each_margin_in_its_units():
+    from harness.report._rows import policy_line
+
+    base, cand = _pair(0.0)
+    verdict = verify_sets(base, cand, GatePolicy(margins={"final": 0.5, "auc": 2.0}, rule="any-drop"))
+    line = policy_line(verdict)
+    assert line.startswith("rule any-drop (fails when the drop is significant, however small)")
+    assert "margins final ±0.5 return (margins.final), auc ±2 return (margins.auc)" in line
+
+
+def test_unsizable_margin_names_the_key():
+    from harness.gate.margins import gate_scale
+
+    with pytest.raises(ConfigError, match=r"m\.toml \[check\.margin\]: cannot size the margin of 'final'"):
+        gate_scale(GatePolicy(), budget=100, path="m.toml")
+    with pytest.raises(ConfigError, match=r"\[check\.threshold\]: metric 'steps-to-threshold' needs a threshold"):
+        gate_scale(GatePolicy(metrics=("steps-to-threshold",)), budget=100)
+
+
+def test_rule_names_are_checked_and_ignore_small_is_retired():
+    from harness.core.config import resolve
+
+    assert resolve(GatePolicy, {"rule": "any-drop"}, key="check").rule == "any-drop"
+    with pytest.raises(ConfigError, match=r"unknown rule 'any_drop'\. Did you mean 'any-drop'\?"):
+        resolve(GatePolicy, {"rule": "any_drop"}, key="check")
+    with pytest.raises(ConfigError, match=r'\[check\.ignore_small\]: was replaced by `rule`: write `rule = "interval-past-margin"`'):
+        GatePolicy.check_retired({"ignore_small": True})

@@ -22,10 +22,9 @@ __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+    from harness.gate.verify import compare_results
     from harness.manifest.policy import GatePolicy
     from harness.store.results import read_results
-    from harness.gate.verify import verify_sets
 
     base_policy = GatePolicy()
     if args.manifest:
@@ -35,17 +34,10 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     policy = policy_from_args(base_policy, args)
     stored = [read_results(folder) for folder in (args.a, args.b)]
     try:
-        sides = [CurveSet.from_results(results, label=f"results {Path(folder)}", expected=len(results.records))
-                 for folder, results in zip((args.a, args.b), stored, strict=True)]
+        verdict = compare_results(*stored, policy, labels=(f"results {Path(args.a)}", f"results {Path(args.b)}"))
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED
-    spec = stored[1].records[0].spec
-    threshold = task_threshold(spec.task) if policy.threshold is None else None
-    floor = None
-    if policy.margin is None and policy.floor is None:
-        floor = random_policy_return(spec.task, spec.evaluation)
-    verdict = verify_sets(sides[0], sides[1], policy, floor=floor, threshold=threshold)
     return finish(verdict, args, console)
 
 

@@ -1,7 +1,9 @@
 """``rlharness record MANIFEST``: run a manifest (or reuse its results) and store its baseline.
 
-Refuses to replace an existing baseline unless ``--overwrite`` is given; the
-check happens before anything is run. Exit codes: 0 recorded, 2 bad input
+Refuses to replace an existing baseline unless ``--overwrite`` is given, and a
+manifest whose gate policy is invalid or whose seeds are too few for its own
+checks (:func:`harness.gate.verify.check_gate_policy`); both checks happen
+before anything is run. Exit codes: 0 recorded, 2 bad input
 (nothing written), 3 runs failed (no baseline written).
 """
 
@@ -34,12 +36,14 @@ def _program_commit(manifest: Any) -> str | None:
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.store.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
+    from harness.gate.verify import check_gate_policy
     from harness.manifest.loader import load_manifest
     from harness.store.results import read_index
 
     manifest = load_manifest(args.manifest)
     path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)
     check_overwrite(path, overwrite=args.overwrite)
+    check_gate_policy(manifest)  # a baseline too small for its own checks is refused before any training
     start = time.perf_counter()
     try:
         results, folder = obtain_results(args, manifest, console)

@@ -21,11 +21,13 @@ __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.gate.verify import check_gate_policy
     from harness.manifest.loader import load_manifest
     from harness.report.progress import RunProgress, RunSummary
     from harness.execute.runner import run_manifest
 
     manifest = load_manifest(args.manifest)
+    check_gate_policy(manifest)  # a gate that could never decide is refused before any training
     options = execution_options(args)
     try:
         with RunProgress(console) as progress:

@@ -17,8 +17,9 @@ from rich.console import Console
 
 from harness.cli import ExitCode
 from harness.cli._options import add_execution_arguments, execution_options
-from harness.core.errors import HarnessError, RunFailedError
+from harness.core.errors import ConfigError, HarnessError, RunFailedError
 from harness.manifest.policy import KNOWN_METRICS, GatePolicy
+from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES
 from harness.gate.verify import Verdict
 
 __all__ = ["add_policy_arguments", "add_report_arguments", "add_run_arguments", "finish", "obtain_results",
@@ -88,16 +89,22 @@ def add_policy_arguments(parser: argparse.ArgumentParser) -> None:
     margin.add_argument("--margin", type=float, help="absolute equivalence margin in the metric's units")
     margin.add_argument("--margin-share", type=float, metavar="SHARE",
                         help="margin as a share of the span from random-policy return to reward threshold")
+    group.add_argument("--rule", choices=tuple(DROP_RULES), metavar="NAME",
+                       help="when a drop fails the gate: " + "; ".join(f"{r.name}: {r.fails_when}"
+                                                                        for r in DROP_RULES.values())
+                       + f" (default {DEFAULT_RULE}, or [check].rule)")
     group.add_argument("--strict", action="store_true", default=None, help="also fail on inconclusive checks")
-    group.add_argument("--ignore-small", action="store_true", default=None,
-                       help="do not fail on significant differences that lie inside the margin")
+    group.add_argument("--ignore-small", action="store_true", default=None, help=argparse.SUPPRESS)
 
 
 def policy_from_args(base: GatePolicy, args: argparse.Namespace) -> GatePolicy:
     """The policy with the command line's overrides applied (a ConfigError names a bad value)."""
+    if args.ignore_small:
+        raise ConfigError("--ignore-small was replaced by --rule: `--rule interval-past-margin` does the same; the "
+                          "default rule drop-beyond-margin already lets drops inside the margin pass")
     metrics = tuple(m.strip() for m in args.metrics.split(",")) if args.metrics else None
-    return base.with_overrides(metrics=metrics, alpha=args.alpha, margin=args.margin, margin_share=args.margin_share,
-                               strict=args.strict, ignore_small=args.ignore_small)
+    return base.with_overrides(metrics=metrics, alpha=args.alpha, rule=args.rule, margin=args.margin,
+                               margin_share=args.margin_share, strict=args.strict)
 
 
 def add_report_arguments(parser: argparse.ArgumentParser) -> None:
@@ -146,7 +153,7 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.store.baseline import default_baseline_path
     from harness.manifest.loader import load_manifest
-    from harness.gate.verify import baseline_for, verify_manifest
+    from harness.gate.verify import baseline_for, check_baseline_seeds, check_gate_policy, verify_manifest
 
     try:
         _check_report_paths(args)
@@ -155,6 +162,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
         return ExitCode.BAD_INPUT
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)
+    scale = check_gate_policy(manifest, policy)  # before anything runs
     path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
     history = None
     if args.baseline_ref:
@@ -162,13 +170,15 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
 
         history = baseline_history(path, args.baseline_ref)
     baseline = baseline_for(manifest, path, required=bool(args.baseline))
+    if baseline is not None:
+        check_baseline_seeds(manifest, policy, baseline)
     if baseline is None:
         console.print(f"no baseline at {path}: checking against the manifest's published references only",
                       highlight=False)
     try:
         results, folder = obtain_results(args, manifest, console)
-        verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy,
-                                  candidate_label=f"rerun of {manifest.name} (results in {folder})", history=history)
+        verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy, scale=scale, history=history,
+                                  candidate_label=f"rerun of {manifest.name} (results in {folder})")
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

@@ -4,7 +4,7 @@
 unchanged configuration, the manifest's, splits them many times at random into
 two disjoint groups of the manifest's seed count and applies the manifest's own
 gate policy to each pair exactly as ``verify`` does (its statistical layer:
-:func:`harness.gate.compare.compare_sets` then :func:`harness.gate.verify.decide`). Both
+:func:`harness.gate.compare.compare_sets` and its gate decision). Both
 groups come from the same configuration, so every failed gate is a false alarm
 (an A/A comparison). It reports
 
@@ -37,13 +37,13 @@ import numpy as np
 from harness import stats
 from harness.store.cache import RunCache
 from harness.gate.calibration_set import calibration_manifest, reuse_stored_runs
-from harness.gate.compare import metric_values, compare_sets
-from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
-from harness.core.errors import ConfigError
+from harness.gate.compare import compare_sets, metric_values
+from harness.gate.curveset import CurveSet
+from harness.gate.margins import GateScale, gate_scale
 from harness.manifest.policy import GatePolicy
 from harness.stats._validate import check_positive_int
 from harness.stats.proportion import BinomialRate
-from harness.gate.verify import decide
+from harness.gate.verify import check_gate_policy
 
 __all__ = [
     "DEFAULT_SPLITS",
@@ -150,7 +150,8 @@ class Calibration:
         Splits in which the gate failed (every one a false alarm).
     called_worse
         Splits in which some check came out significantly worse (differs from ``false_alarms``
-        only under ``strict`` or ``ignore_small``); at most about ``alpha`` when the gate is calibrated.
+        under ``strict`` and under every rule but ``any-drop``); at most about ``alpha`` when the
+        gate is calibrated.
     metrics
         Noise and power per metric, in the policy's order.
     recommendation
@@ -277,8 +278,7 @@ def calibrate_curves(
     policy: GatePolicy,
     splits: int = DEFAULT_SPLITS,
     split_seed: int = DEFAULT_SPLIT_SEED,
-    floor: float | None = None,
-    threshold: float | None = None,
+    scale: GateScale | None = None,
     targets: Mapping[str, float] | None = None,
     sources: Mapping[str, int] | None = None,
 ) -> Calibration:
@@ -295,8 +295,9 @@ def calibrate_curves(
         where the curves part does not enter the gate).
     splits, split_seed
         Number of A/A splits and the entropy of the Generator that draws them.
-    floor, threshold
-        Random-policy return and reward threshold of the task, for margins given as a share.
+    scale
+        Floor, threshold and margins (:func:`harness.gate.verify.check_gate_policy`); by default
+        sized from the policy alone.
     targets
         Differences to detect per metric (default: each metric's margin).
     sources
@@ -321,14 +322,16 @@ def calibrate_curves(
     pairs = split_groups(len(curves.runs), g, splits=splits, seed=split_seed)
     goals = _targets_iv(targets, policy.metrics)
     gate = dataclasses.replace(policy, locate=False)
-    threshold = policy.threshold if policy.threshold is not None else threshold
+    scale = scale or gate_scale(policy, budget=curves.budget)
+    threshold = scale.threshold
     counts = {m: dict.fromkeys(("equivalent", "better", "worse", "inconclusive"), 0) for m in policy.metrics}
     failed = worse = 0
     for a, b in pairs:
         base = dataclasses.replace(curves, runs=tuple(curves.runs[i] for i in a))
         cand = dataclasses.replace(curves, runs=tuple(curves.runs[i] for i in b))
-        checks = compare_sets(base, cand, gate, floor=floor, threshold=threshold).checks
-        failed += not decide(checks, gate).passed
+        comparison = compare_sets(base, cand, gate, scale=scale)
+        checks = comparison.checks
+        failed += not comparison.gate.passed
         worse += any(c.verdict == "worse" for c in checks)
         for c in checks:
             counts[c.metric][c.verdict] += 1
@@ -336,7 +339,7 @@ def calibrate_curves(
     for metric in policy.metrics:
         values = metric_values(metric, curves, policy, threshold)
         sd = float(np.std(values.values, ddof=1))
-        margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=curves.budget)
+        margin = scale.margin(metric)
         target = goals.get(metric, margin)
         detectable, needed = _power_of(sd, g, target, policy)
         noise.append(MetricNoise(
@@ -351,7 +354,7 @@ def calibrate_curves(
         manifest=curves.manifest.removesuffix("-calibration"), source=curves.label, seeds=len(curves.runs),
         group_size=g, splits=m, split_seed=int(split_seed), policy=policy,
         false_alarms=_split_rate(failed, m), called_worse=_split_rate(worse, m),
-        metrics=tuple(noise), recommendation=_recommend(noise), floor=floor, threshold=threshold,
+        metrics=tuple(noise), recommendation=_recommend(noise), floor=scale.floor, threshold=threshold,
         sources=dict(sources or {}),
     )
 
@@ -372,8 +375,8 @@ class CalibrationPlan:
         Number of A/A splits and the entropy they are drawn from.
     targets
         Differences to detect per metric (the margin for the others).
-    floor, threshold
-        Random-policy return (``None`` unless a margin is a share of the span) and reward threshold.
+    scale
+        Floor, threshold and margins, resolved before anything runs.
     """
 
     manifest: Any
@@ -382,8 +385,7 @@ class CalibrationPlan:
     splits: int
     split_seed: int
     targets: Mapping[str, float]
-    floor: float | None
-    threshold: float | None
+    scale: GateScale
 
 
 def plan_calibration(
@@ -412,18 +414,15 @@ def plan_calibration(
     ------
     ValueError
         Too few seeds, a bad split count or seed, a target for a metric the gate does not
-        check, or a margin that cannot be sized (a ``ConfigError`` naming the key).
+        check, or an invalid gate policy (a ``ConfigError`` naming the file and key,
+        :func:`harness.gate.verify.check_gate_policy`).
     """
     policy = policy or manifest.check
+    scale = check_gate_policy(manifest, policy)
     derived = calibration_manifest(manifest, seeds=seeds)
     goals = _targets_iv(targets, policy.metrics)
-    threshold = task_threshold(manifest.task) if policy.threshold is None else policy.threshold
-    if threshold is None and "steps-to-threshold" in policy.metrics:
-        raise ConfigError(f"metric 'steps-to-threshold' needs a threshold, and {manifest.task.id!r} registers no "
-                          "reward threshold with gymnasium: set `threshold` in [check]", key="check.threshold")
-    floor = _floor_if_needed(manifest, policy, threshold)
     return CalibrationPlan(manifest, derived, policy, check_positive_int(splits, "splits"),
-                           check_positive_int(split_seed, "split_seed", minimum=0), goals, floor, threshold)
+                           check_positive_int(split_seed, "split_seed", minimum=0), goals, scale)
 
 
 def run_calibration(
@@ -471,19 +470,5 @@ def run_calibration(
     curves = CurveSet.from_results(outcome.results, label=f"calibration results in {folder}",
                                    config=derived.resolved_config(), expected=len(derived.seeds))
     return calibrate_curves(curves, group_size=len(manifest.seeds), policy=plan.policy, splits=plan.splits,
-                            split_seed=plan.split_seed, floor=plan.floor, threshold=plan.threshold,
+                            split_seed=plan.split_seed, scale=plan.scale,
                             targets=plan.targets, sources=tally)
-
-
-def _floor_if_needed(manifest: Any, policy: GatePolicy, threshold: float | None) -> float | None:
-    """The random-policy return when a margin is a share of the span; sizing every margin checks it can be."""
-    try:
-        for metric in policy.metrics:
-            policy.margin_for(metric, floor=None, threshold=threshold, budget=manifest.budget)
-        return None
-    except ConfigError:
-        floor = random_policy_return(manifest.task, manifest.evaluation)
-    for metric in policy.metrics:  # raises, naming the fix, when even the floor cannot size it
-        policy.margin_for(metric, floor=floor, threshold=threshold, budget=manifest.budget)
-    return floor
-

@@ -26,12 +26,23 @@ reference) it reports the difference ``candidate - baseline`` with its
     to detect a difference as large as the margin.
 
 A significant difference whose interval also lies inside the margin is marked
-``within_margin``; a policy with ``ignore_small`` lets it pass the gate.
+``within_margin``. Each check also tests whether the candidate is worse by more
+than the margin (the one-sided Welch test of ``H0: drop <= margin``, Holm-corrected
+across checks the same way): ``beyond_margin``.
+
+The gate (:func:`decide`) applies the policy's ``rule``
+(:mod:`harness.stats.drop_rules`) to these numbers: by default it fails only
+when a drop is significantly larger than the margin; ``any-drop`` fails on any
+significant drop. A check whose test cannot reach its level with the seeds at
+hand (a rank or permutation test with too few seeds) says so and names the
+seeds it needs, instead of reporting "no difference".
 
 When both samples are constant (every seed scores the same, common with tabular
 tasks that all seeds solve) the difference is known exactly: the statistics
 layer then gives p-values 0 or 1 and a zero-width interval, so the check is
 equivalent when the difference lies inside the margin, worse or better otherwise.
+Differences and spreads within floating-point resolution count as zero
+(:func:`harness.stats.rounding_tolerance`).
 
 Where the curves part is located with a max-statistic permutation test over
 checkpoints (Westfall & Young 1993), which controls the family-wise error over
@@ -46,13 +57,15 @@ from collections.abc import Sequence
 import numpy as np
 
 from harness import stats
-from harness.gate.curveset import CurveSet
 from harness.core.errors import BaselineError
+from harness.gate.curveset import CurveSet
+from harness.gate.margins import GateScale, gate_scale
 from harness.gate.metrics import METRICS
 from harness.manifest.policy import GatePolicy, PublishedReference
-from harness.stats import ConfidenceInterval
+from harness.stats import DROP_RULES, ConfidenceInterval
 
-__all__ = ["VERDICTS", "Divergence", "MetricCheck", "StatisticalComparison", "compare_sets"]
+__all__ = ["VERDICTS", "Divergence", "GateDecision", "MetricCheck", "StatisticalComparison", "compare_sets",
+           "decide", "divergence_seeds_needed"]
 
 VERDICTS = ("equivalent", "worse", "better", "inconclusive")
 
@@ -64,7 +77,13 @@ class MetricCheck:
     ``estimate`` is ``candidate - baseline`` in the metric's units; ``interval`` is its
     ``confidence_level`` (``1 - 2 alpha``) Welch interval; ``pvalue`` is the Holm-adjusted
     one-sided p-value of the direction of the verdict (of "worse" unless the verdict is better);
-    ``pvalue_equivalence`` the TOST p-value.
+    ``pvalue_equivalence`` the TOST p-value; ``pvalue_beyond`` the Holm-adjusted p-value of
+    "worse by more than the margin" and ``beyond_margin`` whether it rejects at ``alpha``.
+    ``undecidable`` is the number of seeds per side the check's test needs to be able to reach
+    its level, when it cannot with the seeds at hand (``None`` otherwise). For an inconclusive
+    check, ``detectable`` is the smallest drop the gate's rule catches with the policy's power and
+    ``seeds_needed`` the seeds per side to catch a drop of ``target`` (the margin; twice the margin
+    under ``drop-beyond-margin``, which fails only beyond the margin).
     """
 
     name: str
@@ -83,11 +102,15 @@ class MetricCheck:
     pvalue_worse: float
     pvalue_better: float
     pvalue_equivalence: float
+    pvalue_beyond: float
     margin: float
     verdict: str
     within_margin: bool
+    beyond_margin: bool
+    undecidable: int | None
     detectable: float | None
     seeds_needed: int | None
+    target: float
     method: str
     baseline_values: tuple[float, ...] | None
     candidate_values: tuple[float, ...]
@@ -105,12 +128,21 @@ class MetricCheck:
             return f"{self.title}: equivalent — difference {diff} lies inside the margin ±{self.margin:.4g}."
         if self.verdict in ("worse", "better"):
             small = " but within the margin" if self.within_margin else ""
-            return f"{self.title}: significantly {self.verdict}{small} — difference {diff}, Holm-adjusted p = {self.pvalue:.3g}."
+            beyond = (f"; worse by more than the margin ±{self.margin:.4g} (p = {self.pvalue_beyond:.3g})"
+                      if self.beyond_margin else
+                      f"; not shown to be worse by more than the margin ±{self.margin:.4g} (p = {self.pvalue_beyond:.3g})"
+                      if self.verdict == "worse" else "")
+            return (f"{self.title}: significantly {self.verdict}{small} — difference {diff}, "
+                    f"Holm-adjusted p = {self.pvalue:.3g}{beyond}.")
+        if self.undecidable is not None:
+            return (f"{self.title}: cannot decide with {self.candidate_n} vs {self.baseline_n} seeds (needs "
+                    f"{self.undecidable} per side): its test ({self.method.split(';')[0]}) cannot reach the level "
+                    f"with fewer — difference {diff}.")
         return (
             f"{self.title}: inconclusive — difference {diff} is neither significant nor inside the margin "
             f"±{self.margin:.4g}; with these seeds only differences of about {self.detectable:.4g} are detectable, "
-            + (f"about {self.seeds_needed} seeds per side would detect one as large as the margin."
-               if self.seeds_needed is not None else "no practical number of seeds would detect one as large as the margin.")
+            + (f"about {self.seeds_needed} seeds per side would detect a drop of {self.target:.4g}."
+               if self.seeds_needed is not None else f"no practical number of seeds would detect a drop of {self.target:.4g}.")
         )
 
 
@@ -120,7 +152,9 @@ class Divergence:
 
     ``first_step``/``last_step`` bound the first contiguous range of checkpoints where the
     max-statistic test rejects at ``alpha`` (both ``None`` if nowhere); ``pvalue`` is the
-    smallest adjusted p-value in that range (or overall when nowhere).
+    smallest adjusted p-value in that range (or overall when nowhere). ``seeds_needed`` is set
+    when the test cannot reach ``alpha`` with the seeds at hand (``candidate_n`` against
+    ``baseline_n``): the seeds per side it needs; then "nowhere" means nothing.
     """
 
     first_step: int | None
@@ -128,6 +162,9 @@ class Divergence:
     pvalue: float
     alpha: float
     method: str
+    candidate_n: int = 0
+    baseline_n: int = 0
+    seeds_needed: int | None = None
 
     @property
     def found(self) -> bool:
@@ -135,6 +172,10 @@ class Divergence:
 
     @property
     def reading(self) -> str:
+        if self.seeds_needed is not None:
+            return (f"cannot tell where the curves part with {self.candidate_n} vs {self.baseline_n} seeds (needs "
+                    f"{self.seeds_needed} per side): the permutation test's smallest p-value here is {self.pvalue:.3g}, "
+                    f"above alpha = {self.alpha:g}.")
         if not self.found:
             return f"the curves do not part: at no checkpoint is the candidate significantly below (smallest adjusted p = {self.pvalue:.3g})."
         return (
@@ -151,6 +192,18 @@ class StatisticalComparison:
     divergence: Divergence | None
     alpha: float
     power: float
+    gate: GateDecision
+    scale: GateScale
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class GateDecision:
+    """The gate's outcome under ``rule``, the reasons for it (one line per failing check) and the failing checks."""
+
+    passed: bool
+    reasons: tuple[str, ...]
+    failing: tuple[str, ...] = ()
+    rule: str = "drop-beyond-margin"
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -194,26 +247,39 @@ class _Raw:
     p_worse: float
     p_better: float
     p_equivalence: float
+    p_beyond: float
     equivalent: bool
     margin: float
     method: str
     base_values: tuple[float, ...] | None
     cand_values: tuple[float, ...]
+    undecidable: int | None
 
 
 def _summary(values: np.ndarray) -> tuple[float, float, int]:
-    return float(np.mean(values)), float(np.std(values, ddof=1)) if values.size > 1 else 0.0, int(values.size)
+    mean = float(np.mean(values))
+    sd = float(np.std(values, ddof=1)) if values.size > 1 else 0.0
+    return mean, 0.0 if sd <= stats.rounding_tolerance(mean, values.size) else sd, int(values.size)
+
+
+def _undecidable(n_c: int, n_b: int, side: str, level: float) -> int | None:
+    """Seeds per side Gehan's test needs to reach ``level``, if it cannot with ``n_c`` and ``n_b`` seeds."""
+    if stats.smallest_pvalue_rank(n_c, n_b, alternative=side, ties=True) <= level:
+        return None
+    return stats.minimum_seeds(lambda n: stats.smallest_pvalue_rank(n, n, alternative=side, ties=True), level)
 
 
 def _raw_check(name: str, metric: str, against: str, cand: MetricValues, base: MetricValues | None,
-               reference: PublishedReference | None, margin: float, alpha: float) -> _Raw:
+               reference: PublishedReference | None, margin: float, alpha: float, checks: int) -> _Raw:
     higher_is_better = METRICS[metric].higher_is_better
+    beyond_null = -margin if higher_is_better else margin
     c = _summary(cand.values)
     b = (reference.mean, reference.std, reference.seeds) if reference is not None else _summary(base.values)
     level = 1.0 - 2.0 * alpha
     worse_side, better_side = ("less", "greater") if higher_is_better else ("greater", "less")
     if reference is None:
         worse_t = stats.welch_test(cand.values, base.values, alternative=worse_side)
+        beyond_t = stats.welch_test(cand.values, base.values, alternative=worse_side, null_difference=beyond_null)
         better_t = stats.welch_test(cand.values, base.values, alternative=better_side)
         two = stats.welch_test(cand.values, base.values, alternative="two-sided")
         equiv = stats.equivalence_test(cand.values, base.values, margin=margin, alpha=alpha)
@@ -221,11 +287,13 @@ def _raw_check(name: str, metric: str, against: str, cand: MetricValues, base: M
     else:
         args = (c[0], c[1], c[2], b[0], b[1], b[2])
         worse_t = stats.welch_test_from_stats(*args, alternative=worse_side)
+        beyond_t = stats.welch_test_from_stats(*args, alternative=worse_side, null_difference=beyond_null)
         better_t = stats.welch_test_from_stats(*args, alternative=better_side)
         two = stats.welch_test_from_stats(*args, alternative="two-sided")
         equiv = stats.equivalence_test_from_stats(*args, margin=margin, alpha=alpha)
         method = "Welch's t-test from summary statistics (Welch 1947) with TOST equivalence (Schuirmann 1987)"
     p_worse, p_better, p_equiv, equivalent = worse_t.pvalue, better_t.pvalue, equiv.pvalue, equiv.equivalent
+    p_beyond, undecidable = beyond_t.pvalue, None
     if cand.any_censored or (base is not None and base.any_censored):
         if base is None:
             raise BaselineError(f"{name}: some seeds never reach the threshold, so a mean over seeds is not known; "
@@ -234,31 +302,42 @@ def _raw_check(name: str, metric: str, against: str, cand: MetricValues, base: M
         p_worse = stats.mann_whitney_censored(cand.values, base.values, alternative=worse_side, **kwargs).pvalue
         p_better = stats.mann_whitney_censored(cand.values, base.values, alternative=better_side, **kwargs).pvalue
         p_equiv, equivalent = 1.0, False
-        method = ("Gehan's generalised Wilcoxon test for censored values (Gehan 1965); equivalence is not claimed and "
-                  "the interval counts seeds that never reach the threshold at their last checkpoint")
-    return _Raw(name, metric, against, b, c, c[0] - b[0], two.confidence_interval(confidence_level=level),
-                float(p_worse), float(p_better), float(p_equiv), bool(equivalent), margin, method,
-                None if base is None else tuple(base.values.tolist()), tuple(cand.values.tolist()))
+        # No shifted Gehan test: "beyond the margin" is the significant drop whose estimate exceeds the margin.
+        drop = (b[0] - c[0]) if higher_is_better else (c[0] - b[0])
+        p_beyond = p_worse if drop > margin else 1.0
+        undecidable = _undecidable(c[2], b[2], worse_side, alpha / checks)
+        method = ("Gehan's generalised Wilcoxon test for censored values (Gehan 1965); equivalence is not claimed, "
+                  "'beyond the margin' is a significant drop whose estimate exceeds it, and the interval counts "
+                  "seeds that never reach the threshold at their last checkpoint")
+    return _Raw(name, metric, against, b, c, two.estimate, two.confidence_interval(confidence_level=level),
+                float(p_worse), float(p_better), float(p_equiv), float(p_beyond), bool(equivalent), margin, method,
+                None if base is None else tuple(base.values.tolist()), tuple(cand.values.tolist()), undecidable)
 
 
-def _finish(raw: _Raw, p_worse: float, p_better: float, reject_worse: bool, reject_better: bool,
-            alpha: float, power: float) -> MetricCheck:
+def _finish(raw: _Raw, p: tuple[float, float, float], reject: tuple[bool, bool, bool], policy: GatePolicy) -> MetricCheck:
+    (p_worse, p_better, p_beyond), (reject_worse, reject_better, reject_beyond) = p, reject
+    alpha = policy.alpha
     if reject_worse:
-        verdict, p = "worse", p_worse
+        verdict, shown = "worse", p_worse
     elif reject_better:
-        verdict, p = "better", p_better
+        verdict, shown = "better", p_better
     elif raw.equivalent:
-        verdict, p = "equivalent", p_worse
+        verdict, shown = "equivalent", p_worse
     else:
-        verdict, p = "inconclusive", p_worse
+        verdict, shown = "inconclusive", p_worse
+    # The drop the seeds-needed figure is about: under drop-beyond-margin a drop is caught once it is
+    # significantly beyond the margin, so the figure is for twice the margin (the same sample size).
+    beyond_rule = policy.rule == "drop-beyond-margin"
     detectable = needed = None
-    if verdict == "inconclusive":
+    if verdict == "inconclusive" and raw.undecidable is None:
         sd_b, n_b = raw.base[1], raw.base[2]
         sd_c, n_c = raw.cand[1], raw.cand[2]
-        detectable = float(stats.minimum_detectable_difference(sd_c, n_c, sd_b, n_b, alpha=alpha, power=power,
+        detectable = float(stats.minimum_detectable_difference(sd_c, n_c, sd_b, n_b, alpha=alpha, power=policy.power,
                                                                alternative="greater"))
+        detectable += raw.margin if beyond_rule else 0.0
         try:
-            needed = int(stats.seeds_needed(raw.margin, sd_c, sd_b, alpha=alpha, power=power, alternative="greater"))
+            needed = int(stats.seeds_needed(raw.margin, sd_c, sd_b, alpha=alpha, power=policy.power,
+                                            alternative="greater"))
         except ValueError:  # more seeds than the power solver searches: report none rather than guess
             needed = None
     return MetricCheck(
@@ -266,29 +345,73 @@ def _finish(raw: _Raw, p_worse: float, p_better: float, reject_worse: bool, reje
         baseline_mean=raw.base[0], baseline_sd=raw.base[1], baseline_n=raw.base[2],
         candidate_mean=raw.cand[0], candidate_sd=raw.cand[1], candidate_n=raw.cand[2],
         estimate=raw.estimate, interval=raw.interval, confidence_level=1.0 - 2.0 * alpha,
-        pvalue=p, pvalue_worse=p_worse, pvalue_better=p_better, pvalue_equivalence=raw.p_equivalence,
-        margin=raw.margin, verdict=verdict,
+        pvalue=shown, pvalue_worse=p_worse, pvalue_better=p_better, pvalue_equivalence=raw.p_equivalence,
+        pvalue_beyond=p_beyond, margin=raw.margin, verdict=verdict,
         within_margin=verdict in ("worse", "better") and raw.interval.inside(-raw.margin, raw.margin),
-        detectable=detectable, seeds_needed=needed, method=raw.method,
-        baseline_values=raw.base_values, candidate_values=raw.cand_values,
+        beyond_margin=reject_beyond, undecidable=raw.undecidable,
+        detectable=detectable, seeds_needed=needed, target=(2.0 if beyond_rule else 1.0) * raw.margin,
+        method=raw.method, baseline_values=raw.base_values, candidate_values=raw.cand_values,
     )
 
 
-def _divergence(baseline: CurveSet, candidate: CurveSet, policy: GatePolicy) -> Divergence | None:
-    a, b = candidate.curve_matrix(), baseline.curve_matrix()
-    if a.shape[0] < 2 or b.shape[0] < 2:
+def divergence_seeds_needed(n_candidate: int, n_baseline: int, policy: GatePolicy) -> int | None:
+    """Seeds per side the where-the-curves-part test needs to reach ``alpha``; ``None`` if these suffice."""
+    def smallest(n_c: int, n_b: int) -> float:
+        return stats.smallest_pvalue_permutation(n_c, n_b, n_resamples=policy.permutations, alternative="less")
+
+    if smallest(n_candidate, n_baseline) <= policy.alpha:
         return None
+    return stats.minimum_seeds(lambda n: smallest(n, n), policy.alpha)
+
+
+def _divergence(baseline: CurveSet, candidate: CurveSet, policy: GatePolicy) -> Divergence:
+    a, b = candidate.curve_matrix(), baseline.curve_matrix()
     steps = baseline.steps
     rng = np.random.default_rng(np.random.SeedSequence(0x4449564552))  # fixed: same data, same report
     result = stats.max_statistic_test(a, b, alternative="less", n_resamples=policy.permutations, rng=rng,
                                       alpha=policy.alpha)
     adjusted = np.asarray(result.adjusted_pvalues, dtype=np.float64)
     method = f"{result.method}; Westfall & Young (1993)"
+    sizes = {"candidate_n": a.shape[0], "baseline_n": b.shape[0],
+             "seeds_needed": divergence_seeds_needed(a.shape[0], b.shape[0], policy)}
     where = result.first_rejected_range(policy.alpha)
     if where is None:
-        return Divergence(None, None, float(adjusted.min()), policy.alpha, method)
+        return Divergence(None, None, float(adjusted.min()), policy.alpha, method, **sizes)
     return Divergence(steps[where.start], steps[where.stop - 1], float(adjusted[where.start:where.stop].min()),
-                      policy.alpha, method)
+                      policy.alpha, method, **sizes)
+
+
+def _oriented_drop(check: MetricCheck) -> tuple[float, ConfidenceInterval]:
+    """The check's drop (positive = worse) and its interval."""
+    if METRICS[check.metric].higher_is_better:
+        return -check.estimate, ConfidenceInterval(-check.interval.high, -check.interval.low)
+    return check.estimate, check.interval
+
+
+def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
+    """Apply the gate policy (its ``rule`` and ``strict``) to the statistical verdicts."""
+    reasons, failing, forgiven = [], [], []
+    rule = DROP_RULES[policy.rule]
+    for c in checks:
+        drop, drop_interval = _oriented_drop(c)
+        fails = stats.drop_fails(policy.rule, significant=c.verdict == "worse", beyond_margin=c.beyond_margin,
+                                 drop=drop, drop_interval=drop_interval, margin=c.margin)
+        if fails:
+            reasons.append(f"{c.title} fails rule {rule.name} ({rule.fails_when}): difference {c.estimate:+.4g}, "
+                           f"margin ±{c.margin:.4g}, Holm-adjusted p = {c.pvalue_worse:.3g} (worse), "
+                           f"{c.pvalue_beyond:.3g} (worse by more than the margin)")
+            failing.append(c.name)
+        elif c.verdict == "worse":
+            forgiven.append(c.name)
+        elif c.verdict == "inconclusive" and policy.strict:
+            settle = (f"needs {c.undecidable} seeds per side to decide at all" if c.undecidable is not None else
+                      f"about {c.seeds_needed} seeds per side would settle it")
+            reasons.append(f"{c.title} is inconclusive and the policy is strict ({settle})")
+            failing.append(c.name)
+    if not reasons:
+        note = (f" (significantly worse but not failing rule {rule.name}: {', '.join(forgiven)})" if forgiven else "")
+        return GateDecision(True, (f"no check fails rule {rule.name} ({rule.fails_when}){note}",), (), rule.name)
+    return GateDecision(False, tuple(reasons), tuple(failing), rule.name)
 
 
 def compare_sets(
@@ -297,10 +420,9 @@ def compare_sets(
     policy: GatePolicy,
     *,
     references: Sequence[PublishedReference] = (),
-    floor: float | None = None,
-    threshold: float | None = None,
+    scale: GateScale | None = None,
 ) -> StatisticalComparison:
-    """Run every statistical check of ``candidate`` against ``baseline`` and ``references``.
+    """Run every statistical check of ``candidate`` against ``baseline`` and ``references``, and the gate.
 
     Parameters
     ----------
@@ -309,23 +431,27 @@ def compare_sets(
     candidate
         The new curves.
     policy
-        Metrics, alpha, margins, power and the divergence search.
+        Metrics, alpha, rule, margins, power and the divergence search.
     references
         Published summary statistics to check the candidate against as well.
-    floor, threshold
-        Random-policy return and reward threshold of the task, for margins given as a share.
+    scale
+        The floor, threshold and margins (:func:`harness.gate.margins.task_scale`); by default
+        sized from the policy alone (its ``floor``, ``threshold`` and margins).
 
     Raises
     ------
     BaselineError
         If the checkpoint grids differ, or there is nothing to compare against.
+    ConfigError
+        If ``scale`` is not given and a margin cannot be sized from the policy alone.
 
     References
     ----------
     Welch, B. L. (1947). Biometrika 34:28-35. Holm, S. (1979). Scand. J. Statist. 6:65-70.
     Schuirmann, D. J. (1987). J. Pharmacokin. Biopharm. 15:657-680. Berger, R. L. (1982).
     Technometrics 24:295-300. Westfall, P. H. & Young, S. S. (1993). Resampling-Based
-    Multiple Testing. Wiley.
+    Multiple Testing. Wiley. Wellek, S. (2010). Testing Statistical Hypotheses of Equivalence
+    and Noninferiority, 2nd ed. Chapman & Hall/CRC.
     """
     if baseline is None and not references:
         raise BaselineError("nothing to compare against: no baseline and no [[reference]] in the manifest; "
@@ -342,22 +468,23 @@ def compare_sets(
                 f"{side.label}: {len(side.runs)} seed; the statistical checks need at least 2 seeds per side "
                 "(seeds are the samples): raise [seeds].count in the manifest"
             )
-    threshold = policy.threshold if policy.threshold is not None else threshold
-    raws = []
-    for metric in policy.metrics if baseline is not None else ():
-        margin = policy.margin_for(metric, floor=floor, threshold=threshold, budget=candidate.budget)
-        raws.append(_raw_check(metric, metric, "baseline", metric_values(metric, candidate, policy, threshold),
-                               metric_values(metric, baseline, policy, threshold), None, margin, policy.alpha))
-    for number, ref in enumerate(references, start=1):
-        margin = policy.margin_for(ref.metric, floor=floor, threshold=threshold, budget=candidate.budget)
-        raws.append(_raw_check(f"{ref.metric} vs reference {number}", ref.metric, ref.source,
-                               metric_values(ref.metric, candidate, policy, threshold), None, ref, margin,
-                               policy.alpha))
-    worse = stats.holm([r.p_worse for r in raws], alpha=policy.alpha)
-    better = stats.holm([r.p_better for r in raws], alpha=policy.alpha)
+    scale = scale or gate_scale(policy, budget=candidate.budget, references=references)
+    threshold = scale.threshold
+    plan = [(metric, metric, "baseline", None) for metric in (policy.metrics if baseline is not None else ())]
+    plan += [(f"{ref.metric} vs reference {number}", ref.metric, ref.source, ref)
+             for number, ref in enumerate(references, start=1)]
+    raws = [
+        _raw_check(name, metric, against, metric_values(metric, candidate, policy, threshold),
+                   None if ref is not None else metric_values(metric, baseline, policy, threshold), ref,
+                   scale.margin(metric), policy.alpha, len(plan))
+        for name, metric, against, ref in plan
+    ]
+    holm = [stats.holm([getattr(r, key) for r in raws], alpha=policy.alpha)
+            for key in ("p_worse", "p_better", "p_beyond")]
     checks = tuple(
-        _finish(raw, float(pw), float(pb), bool(rw), bool(rb), policy.alpha, policy.power)
-        for raw, pw, pb, rw, rb in zip(raws, worse.adjusted, better.adjusted, worse.reject, better.reject, strict=True)
+        _finish(raw, tuple(float(h.adjusted[i]) for h in holm), tuple(bool(h.reject[i]) for h in holm), policy)
+        for i, raw in enumerate(raws)
     )
     divergence = _divergence(baseline, candidate, policy) if baseline is not None and policy.locate else None
-    return StatisticalComparison(checks=checks, divergence=divergence, alpha=policy.alpha, power=policy.power)
+    return StatisticalComparison(checks=checks, divergence=divergence, alpha=policy.alpha, power=policy.power,
+                                 gate=decide(checks, policy), scale=scale)

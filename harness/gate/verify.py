@@ -16,10 +16,11 @@ Layers, each reported:
 4. **Where the curves part** — the first checkpoint range where the candidate is
    significantly below (family-wise error controlled).
 
-The **gate** is a policy over those verdicts (:class:`harness.manifest.policy.GatePolicy`):
-it fails on nondeterminism (unless ``allow_nondeterminism``), when a check is
-significantly worse (unless ``ignore_small`` and the difference lies inside the
-margin) and, in ``strict`` mode, when one is inconclusive.
+The **gate** is a policy over those verdicts (:class:`harness.manifest.policy.GatePolicy`,
+applied by :func:`harness.gate.compare.decide`): it fails on nondeterminism (unless
+``allow_nondeterminism``), under its ``rule`` (by default ``drop-beyond-margin``: a drop
+significantly larger than the margin fails; ``any-drop``: any significant drop fails) and, in
+``strict`` mode, when a check is inconclusive. Every report names the rule that decided.
 """
 
 from __future__ import annotations
@@ -32,18 +33,21 @@ from typing import Any
 
 import numpy as np
 
+from harness import stats
+from harness.core.errors import BaselineError, ConfigError, ResultsError
+from harness.core.spec import config_changes
+from harness.gate.compare import Divergence, GateDecision, MetricCheck, compare_sets, divergence_seeds_needed
+from harness.gate.curveset import CurveSet
+from harness.gate.margins import GateScale, task_scale
+from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.store.baseline import Baseline, read_baseline
 from harness.store.history import BaselineHistory
-from harness.gate.compare import Divergence, MetricCheck, StatisticalComparison, compare_sets
-from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
-from harness.core.errors import BaselineError, ResultsError
-from harness.manifest.policy import GatePolicy, PublishedReference
-from harness.core.spec import config_changes
 from harness.store.results import TRAINER_SOURCE
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
     "baseline_for",
+    "compare_results",
     "rerun_and_verify",
     "ConfigChange",
     "VersionChange",
@@ -51,18 +55,22 @@ __all__ = [
     "GateDecision",
     "Provenance",
     "Verdict",
+    "check_baseline_seeds",
+    "check_gate_policy",
     "check_grid",
-    "decide",
     "exact_check",
+    "minimum_seeds",
     "provenance",
     "verify_manifest",
     "verify_sets",
+    "with_exact",
 ]
 
 #: The sentence every report carries.
 WHAT_A_PASS_MEANS = (
-    "A pass means no check found the candidate significantly worse than its reference at the chosen error "
-    "rate; it does not prove the code correct, and an inconclusive check is not evidence of equivalence."
+    "A pass means no check found the candidate worse than its reference under the gate's rule at the chosen "
+    "error rate (by default: no drop significantly larger than the margin; a drop inside the margin may "
+    "remain); it does not prove the code correct, and an inconclusive check is not evidence of equivalence."
 )
 
 
@@ -161,15 +169,6 @@ class ExactCheck:
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
-class GateDecision:
-    """The gate's outcome, the reasons for it (one line per failing check) and the failing checks' names."""
-
-    passed: bool
-    reasons: tuple[str, ...]
-    failing: tuple[str, ...] = ()
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
 class Verdict:
     """Everything verification found, and the gate's decision (with the curves it was computed from)."""
 
@@ -180,8 +179,7 @@ class Verdict:
     divergence: Divergence | None
     gate: GateDecision
     policy: GatePolicy
-    floor: float | None
-    threshold: float | None
+    scale: GateScale
     baseline_set: CurveSet | None = dataclasses.field(default=None, repr=False)
     candidate_set: CurveSet | None = dataclasses.field(default=None, repr=False)
     history: BaselineHistory | None = None
@@ -189,6 +187,16 @@ class Verdict:
     @property
     def passed(self) -> bool:
         return self.gate.passed
+
+    @property
+    def floor(self) -> float | None:
+        """The random-policy return the margins were sized from (``None`` if none was needed)."""
+        return self.scale.floor
+
+    @property
+    def threshold(self) -> float | None:
+        """The reward threshold used (margins and steps-to-threshold)."""
+        return self.scale.threshold
 
     @property
     def summary(self) -> str:
@@ -255,32 +263,19 @@ def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance
     return ExactCheck("identical", "")
 
 
-def decide(checks: Sequence[MetricCheck], policy: GatePolicy, exact: ExactCheck | None = None) -> GateDecision:
-    """Apply the gate policy to the exact check and the statistical verdicts."""
-    reasons, failing, notes = [], [], []
-    if exact is not None and exact.nondeterministic:
-        if policy.allow_nondeterminism:
-            notes.append("nondeterminism allowed by the policy (allow_nondeterminism = true): the statistical "
-                         "checks decide alone")
-        else:
-            reasons.append(
-                f"the curves are not bitwise identical (first at seed {exact.seed}, step {exact.step}) although "
-                "configuration, installed versions and trainer source are unchanged: a reproducibility failure; "
-                "make training deterministic, or set allow_nondeterminism = true in [check] to let the "
-                "statistical checks decide")
-            failing.append("exact")
-    for c in checks:
-        if c.verdict == "worse" and not (policy.ignore_small and c.within_margin):
-            reasons.append(f"{c.title} is significantly worse ({c.estimate:+.4g}, Holm-adjusted p = {c.pvalue:.3g})")
-            failing.append(c.name)
-        elif c.verdict == "inconclusive" and policy.strict:
-            reasons.append(f"{c.title} is inconclusive and the policy is strict (about {c.seeds_needed} seeds per side would settle it)")
-            failing.append(c.name)
-    if not reasons:
-        ignored = [c.name for c in checks if c.verdict == "worse"]
-        note = f" (significant but within the margin, ignored by policy: {', '.join(ignored)})" if ignored else ""
-        return GateDecision(True, (f"no check is significantly worse{note}", *notes))
-    return GateDecision(False, (*reasons, *notes), tuple(failing))
+def with_exact(gate: GateDecision, exact: ExactCheck, policy: GatePolicy) -> GateDecision:
+    """The statistical gate decision with the exact check's verdict on nondeterminism added."""
+    if not exact.nondeterministic:
+        return gate
+    if policy.allow_nondeterminism:
+        return dataclasses.replace(gate, reasons=(*gate.reasons, "nondeterminism allowed by the policy "
+                                                  "(allow_nondeterminism = true): the statistical checks decide alone"))
+    reason = (f"the curves are not bitwise identical (first at seed {exact.seed}, step {exact.step}) although "
+              "configuration, installed versions and trainer source are unchanged: a reproducibility failure; "
+              "make training deterministic, or set allow_nondeterminism = true in [check] to let the "
+              "statistical checks decide")
+    reasons = (reason, *gate.reasons) if not gate.passed else (reason,)
+    return dataclasses.replace(gate, passed=False, reasons=reasons, failing=("exact", *gate.failing))
 
 
 def verify_sets(
@@ -289,20 +284,37 @@ def verify_sets(
     policy: GatePolicy,
     *,
     references: Sequence[PublishedReference] = (),
-    floor: float | None = None,
-    threshold: float | None = None,
+    scale: GateScale | None = None,
 ) -> Verdict:
-    """Every verification layer for two curve sets (or one and published references)."""
+    """Every verification layer for two curve sets (or one and published references).
+
+    ``scale`` (floor, threshold, margins) as in :func:`harness.gate.compare.compare_sets`.
+    """
     prov = provenance(baseline, candidate)
     exact = exact_check(baseline, candidate, prov, policy)
-    stats: StatisticalComparison = compare_sets(baseline, candidate, policy, references=references,
-                                                floor=floor, threshold=threshold)
+    stats = compare_sets(baseline, candidate, policy, references=references, scale=scale)
     return Verdict(
         manifest=candidate.manifest, provenance=prov, exact=exact, checks=stats.checks,
-        divergence=stats.divergence, gate=decide(stats.checks, policy, exact), policy=policy,
-        floor=floor, threshold=policy.threshold if policy.threshold is not None else threshold,
+        divergence=stats.divergence, gate=with_exact(stats.gate, exact, policy), policy=policy, scale=stats.scale,
         baseline_set=baseline, candidate_set=candidate,
     )
+
+
+def compare_results(reference: Any, candidate: Any, policy: GatePolicy, *, labels: tuple[str, str]) -> Verdict:
+    """Verify one stored result set against another (``rlharness compare``), sized on the candidate's task.
+
+    Raises
+    ------
+    RunFailedError
+        Some runs of either side failed.
+    ConfigError
+        A margin cannot be sized, or steps-to-threshold has no threshold.
+    """
+    sides = [CurveSet.from_results(results, label=label, expected=len(results.records))
+             for results, label in zip((reference, candidate), labels, strict=True)]
+    spec = candidate.records[0].spec
+    scale = task_scale(policy, task=spec.task, evaluation=spec.evaluation, budget=sides[1].budget)
+    return verify_sets(sides[0], sides[1], policy, scale=scale)
 
 
 def check_grid(manifest: Any, baseline: Baseline) -> None:
@@ -317,10 +329,58 @@ def check_grid(manifest: Any, baseline: Baseline) -> None:
         )
 
 
-def _needs_span(policy: GatePolicy, references: Sequence[PublishedReference]) -> bool:
-    metrics = set(policy.metrics) | {r.metric for r in references}
-    return (policy.margin is None and (policy.floor is None or policy.threshold is None)
-            and any(m != "steps-to-threshold" and m not in policy.margins for m in metrics))
+def minimum_seeds(policy: GatePolicy, references: Sequence[PublishedReference] = ()) -> dict[str, int]:
+    """The fewest seeds per side each check of ``policy`` needs to be able to decide at all.
+
+    Welch's t-test (every metric, every published reference) needs 2; where the curves part
+    (``locate``), the exact permutation test needs ``C(2n, n) >= 1 / alpha`` (3 at alpha 0.05);
+    ``steps-to-threshold``, when seeds never reach the threshold, Gehan's test at Holm's first
+    step ``alpha / k`` (:func:`harness.stats.smallest_pvalue_rank`).
+    """
+    checks = len(policy.metrics) + len(references)
+    needs = {f"[check].metrics {m!r} (Welch's t-test)": 2 for m in policy.metrics if m != "steps-to-threshold"}
+    if "steps-to-threshold" in policy.metrics:
+        level = policy.alpha / checks
+        needs["[check].metrics 'steps-to-threshold' (Gehan's test when seeds never reach the threshold)"] = (
+            stats.minimum_seeds(lambda n: stats.smallest_pvalue_rank(n, n, ties=True), level) or 2)
+    if policy.locate:
+        needs["[check].locate (where the curves part: permutation test)"] = divergence_seeds_needed(1, 1, policy) or 2
+    return needs
+
+
+def _check_seeds(manifest: Any, policy: GatePolicy, side: str, n: int) -> None:
+    path = None if manifest.path is None else str(manifest.path)
+    for check, needed in minimum_seeds(policy, tuple(manifest.references)).items():
+        if n < needed:
+            fix = " or set `locate = false` in [check]" if "locate" in check else ""
+            raise ConfigError(f"{side} has {n} seeds, but {check} cannot decide with fewer than {needed} seeds per "
+                              f"side: raise [seeds].count to at least {needed}{fix}", path=path, key="seeds.count")
+
+
+def check_gate_policy(manifest: Any, policy: GatePolicy | None = None, *, baseline: Baseline | None = None) -> GateScale:
+    """Validate the whole gate policy of ``manifest`` before anything runs, and return its scale.
+
+    Checks margins (each sized in its metric's units), the threshold of steps-to-threshold,
+    and the seed counts of the manifest (and of ``baseline``) against :func:`minimum_seeds`.
+
+    Raises
+    ------
+    ConfigError
+        Naming the manifest file and the key to change.
+    """
+    policy = policy or manifest.check
+    scale = task_scale(policy, task=manifest.task, evaluation=manifest.evaluation, budget=manifest.budget,
+                       references=tuple(manifest.references),
+                       path=None if manifest.path is None else str(manifest.path))
+    _check_seeds(manifest, policy, "the manifest", len(manifest.seeds))
+    if baseline is not None:
+        check_baseline_seeds(manifest, policy, baseline)
+    return scale
+
+
+def check_baseline_seeds(manifest: Any, policy: GatePolicy, baseline: Baseline) -> None:
+    """Refuse a baseline with fewer seeds than the policy's checks need (:func:`minimum_seeds`)."""
+    _check_seeds(manifest, policy, f"the baseline {baseline.path}", len(baseline.runs))
 
 
 def verify_manifest(
@@ -331,6 +391,7 @@ def verify_manifest(
     policy: GatePolicy | None = None,
     candidate_label: str | None = None,
     history: BaselineHistory | None = None,
+    scale: GateScale | None = None,
 ) -> Verdict:
     """Verify a manifest's results against its baseline and its published references.
 
@@ -349,6 +410,8 @@ def verify_manifest(
     history
         How the baseline differs from its version at a git ref
         (:func:`harness.store.history.baseline_history`); reports show a change first.
+    scale
+        The floor, threshold and margins if already resolved (:func:`check_gate_policy`).
 
     Raises
     ------
@@ -372,13 +435,11 @@ def verify_manifest(
     candidate = CurveSet.from_results(results, label=candidate_label or f"rerun of {manifest.name}",
                                       config=manifest.resolved_config(), expected=len(manifest.seeds))
     references = tuple(manifest.references)
-    floor = threshold = None
-    if policy.threshold is None:
-        threshold = task_threshold(manifest.task)
-    if _needs_span(policy, references):
-        floor = random_policy_return(manifest.task, manifest.evaluation)
+    if scale is None:
+        scale = task_scale(policy, task=manifest.task, evaluation=manifest.evaluation, budget=manifest.budget,
+                           references=references, path=None if manifest.path is None else str(manifest.path))
     verdict = verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
-                          references=references, floor=floor, threshold=threshold)
+                          references=references, scale=scale)
     return verdict if history is None else dataclasses.replace(verdict, history=history)
 
 
@@ -417,12 +478,15 @@ def rerun_and_verify(
     ------
     BaselineError
         As :func:`baseline_for`; nothing is run then.
+    ConfigError
+        As :func:`check_gate_policy`; nothing is run then.
     RunFailedError
         If any run failed.
     """
     from harness.execute.runner import run_manifest
 
     baseline = baseline_for(manifest, baseline_path)
+    scale = check_gate_policy(manifest, policy, baseline=baseline)
     outcome = run_manifest(manifest, results_dir=results_dir, **run_options)
-    return verify_manifest(manifest, outcome.results, baseline=baseline, policy=policy,
+    return verify_manifest(manifest, outcome.results, baseline=baseline, policy=policy, scale=scale,
                            candidate_label=f"rerun of {manifest.name} ({outcome.folder})")

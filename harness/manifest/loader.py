@@ -396,6 +396,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         epsilon=table.evaluation.epsilon,
     )
     seeds = table.seeds.planned()
+    GatePolicy.check_retired(table.check, path=where)
     check = config.resolve(GatePolicy, table.check, path=where, key="check")
     references = tuple(
         config.resolve(PublishedReference, ref, path=where, key=f"reference[{i}]") for i, ref in enumerate(table.reference)

@@ -11,16 +11,29 @@ Both are frozen values; ``__post_init__`` raises
 read into them by the settings resolver (``harness.core.config.resolve``), which
 also rejects unknown keys with a "did you mean" hint.
 
-The margin
-----------
-The margin is either absolute (``margin``, in the metric's units) or a share of
-the span between the random-policy return and the task's reward threshold
-(``margin_share``; the default is ``0.1``). The span is ``|threshold - floor|``,
-so it is positive for tasks whose returns are negative (Acrobot: random about
--500, threshold -100, span 400; MountainCar: -200 and -110, span 90). The floor
-is the mean return of a uniformly random policy on the evaluation episodes
-unless the manifest gives ``floor``. For ``steps-to-threshold`` (measured in
-environment steps) a share margin is a share of the training budget.
+The rule
+--------
+``rule`` names when a drop fails the gate (:data:`harness.stats.drop_rules.DROP_RULES`):
+``"drop-beyond-margin"`` (the default) fails only when the drop is
+significantly larger than the margin; ``"any-drop"`` fails on any significant
+drop (the rule before issue 10). The retired key ``ignore_small`` is refused
+with the name of its replacement (``rule = "interval-past-margin"``).
+
+The margin, in each metric's units
+----------------------------------
+Each metric has its own margin in its own units (:data:`METRIC_UNITS`):
+
+* the return metrics (``final``, ``auc``): ``margins.<metric>`` if given, else
+  ``margin`` (absolute, in units of return), else ``margin_share`` (default
+  ``0.1``) of the span between the random-policy return and the task's reward
+  threshold. The span is ``|threshold - floor|``, so it is positive for tasks
+  whose returns are negative (Acrobot: random about -500, threshold -100, span
+  400; MountainCar: -200 and -110, span 90). The floor is the mean return of a
+  uniformly random policy on the evaluation episodes unless the manifest gives
+  ``floor``.
+* ``steps-to-threshold`` (environment steps): ``margins.steps-to-threshold`` if
+  given, else ``margin_share`` (default ``0.1``) of the training budget. The
+  absolute ``margin`` is in units of return and never applies to it.
 """
 
 from __future__ import annotations
@@ -32,11 +45,22 @@ from typing import Any
 
 from harness.core.config import check_number
 from harness.core.errors import ConfigError, did_you_mean
+from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES
 
-__all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "GatePolicy", "PublishedReference"]
+__all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "METRIC_UNITS", "RETIRED_KEYS", "GatePolicy",
+           "PublishedReference"]
 
 #: Metric names understood by the checks (see ``harness.gate.metrics.METRICS``).
 KNOWN_METRICS = ("final", "auc", "steps-to-threshold")
+
+#: The unit of each metric, in which its margin is given.
+METRIC_UNITS = {"final": "return", "auc": "return", "steps-to-threshold": "env steps"}
+
+#: Keys of ``[check]`` that no longer exist, with what to write instead.
+RETIRED_KEYS = {
+    "ignore_small": ('was replaced by `rule`: write `rule = "interval-past-margin"` for the same behaviour, or '
+                     'remove it: the default rule "drop-beyond-margin" already lets drops inside the margin pass'),
+}
 
 #: Default margin: a tenth of the span between random-policy return and reward threshold.
 DEFAULT_MARGIN_SHARE = 0.1
@@ -52,19 +76,19 @@ class GatePolicy:
         Metrics checked statistically, from ``"final"``, ``"auc"`` and ``"steps-to-threshold"``.
     alpha
         Family-wise error rate of the checks (Holm-corrected across metrics).
+    rule
+        When a drop fails the gate: a name from :data:`harness.stats.drop_rules.DROP_RULES`.
     margin
-        Absolute equivalence margin in the metric's units; excludes ``margin_share``.
+        Absolute margin in units of return, for the return metrics; excludes ``margin_share``.
     margin_share
         Margin as a share of the span between random-policy return and reward threshold
-        (default ``0.1`` when neither ``margin`` nor ``margin_share`` is given).
+        (return metrics) or of the budget (``steps-to-threshold``); default ``0.1``.
     margins
-        Absolute margins per metric, overriding the two above for the metrics it names.
+        Absolute margins per metric in the metric's units, overriding the two above.
     floor
         Random-policy return used for the span; ``None`` measures it on the evaluation episodes.
     threshold
         Return that counts as solved; ``None`` takes the task's registered reward threshold.
-    ignore_small
-        Do not fail on a significant worsening smaller than the margin.
     strict
         Also fail on an inconclusive verdict (too few seeds to tell).
     final_share
@@ -85,12 +109,12 @@ class GatePolicy:
 
     metrics: tuple[str, ...] = ("final", "auc")
     alpha: float = 0.05
+    rule: str = DEFAULT_RULE
     margin: float | None = None
     margin_share: float | None = None
     margins: Mapping[str, float] = dataclasses.field(default_factory=dict)
     floor: float | None = None
     threshold: float | None = None
-    ignore_small: bool = False
     strict: bool = False
     final_share: float = 0.1
     power: float = 0.8
@@ -109,6 +133,9 @@ class GatePolicy:
             raise ConfigError(f"lists a metric twice: {list(self.metrics)}", key="metrics")
         object.__setattr__(self, "metrics", tuple(self.metrics))
         check_number(self.alpha, "alpha", low=0, high=0.5, open_low=True, open_high=True)
+        if self.rule not in DROP_RULES:
+            raise ConfigError(f"unknown rule {self.rule!r}.{did_you_mean(str(self.rule), tuple(DROP_RULES))}",
+                              key="rule")
         if self.margin is not None:
             check_number(self.margin, "margin", low=0, open_low=True)
         for key in ("floor", "threshold"):
@@ -125,7 +152,7 @@ class GatePolicy:
                 raise ConfigError(f"unknown metric {name!r}.{did_you_mean(str(name), KNOWN_METRICS)}", key="margins")
             check_number(value, f"margins.{name}", low=0, open_low=True)
         object.__setattr__(self, "margins", dict(self.margins))
-        for key in ("ignore_small", "strict", "bitwise", "allow_nondeterminism", "locate"):
+        for key in ("strict", "bitwise", "allow_nondeterminism", "locate"):
             if not isinstance(getattr(self, key), bool):
                 raise ConfigError(f"must be true or false, got {getattr(self, key)!r}", key=key)
         check_number(self.final_share, "final_share", low=0, high=1, open_low=True)
@@ -161,14 +188,16 @@ class GatePolicy:
         40.0
         >>> GatePolicy(margin=5.0).margin_for("auc", floor=None, threshold=None, budget=1000)
         5.0
+        >>> GatePolicy(margin=5.0).margin_for("steps-to-threshold", floor=None, threshold=None, budget=1000)
+        100.0
         """
         if metric in self.margins:
             return float(self.margins[metric])
+        share = DEFAULT_MARGIN_SHARE if self.margin_share is None else self.margin_share
+        if METRIC_UNITS[metric] != "return":  # steps-to-threshold: never the absolute return margin
+            return share * budget
         if self.margin is not None:
             return float(self.margin)
-        share = DEFAULT_MARGIN_SHARE if self.margin_share is None else self.margin_share
-        if metric == "steps-to-threshold":
-            return share * budget
         low = self.floor if self.floor is not None else floor
         high = self.threshold if self.threshold is not None else threshold
         if low is None or high is None or high == low:
@@ -180,8 +209,37 @@ class GatePolicy:
             )
         return share * abs(high - low)
 
+    @staticmethod
+    def check_retired(table: Mapping[str, Any], *, path: str | None = None, section: str = "check") -> None:
+        """Refuse a key of :data:`RETIRED_KEYS` in a ``[check]`` table, naming its replacement."""
+        for key, fix in RETIRED_KEYS.items():
+            if key in table:
+                raise ConfigError(fix, path=path, key=f"{section}.{key}")
+
+    def needs_span(self, metric: str) -> bool:
+        """Whether the margin of ``metric`` is a share of the span from random-policy return to threshold."""
+        return metric not in self.margins and METRIC_UNITS[metric] == "return" and self.margin is None
+
+    def margin_basis(self, metric: str) -> str:
+        """How the margin of ``metric`` is sized, in words (for the report's policy line).
+
+        Examples
+        --------
+        >>> GatePolicy(margin=20.0).margin_basis("steps-to-threshold")
+        '0.1 of the budget'
+        """
+        if metric in self.margins:
+            return f"margins.{metric}"
+        share = DEFAULT_MARGIN_SHARE if self.margin_share is None else self.margin_share
+        if METRIC_UNITS[metric] != "return":
+            return f"{share:g} of the budget"
+        if self.margin is not None:
+            return "margin"
+        return f"{share:g} of the span"
+
     def with_overrides(self, **changes: Any) -> GatePolicy:
         """A copy with the given fields replaced (``None`` values are ignored): command-line overrides."""
+        self.check_retired({k: v for k, v in changes.items() if v is not None}, section="policy")
         names = [f.name for f in dataclasses.fields(self)]
         for key in changes:
             if key not in names:

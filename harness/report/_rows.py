@@ -6,8 +6,8 @@ import json
 import math
 from typing import Any
 
-from harness.manifest.policy import DEFAULT_MARGIN_SHARE
 from harness.gate.verify import Verdict
+from harness.stats.drop_rules import DROP_RULES
 
 __all__ = ["CHECK_HEADER", "check_notes", "check_rows", "config_rows", "drift_rows", "num", "policy_line", "value"]
 
@@ -42,7 +42,8 @@ def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
             f"{c.estimate:+.3g} [{num(c.interval.low, 3)}, {num(c.interval.high, 3)}]",
             f"±{num(c.margin)}",
             f"{c.pvalue:.3g}",
-            c.verdict + (" (within margin)" if c.within_margin else ""),
+            c.verdict + (" (within margin)" if c.within_margin else " (beyond margin)" if c.beyond_margin
+                         else " (too few seeds)" if c.undecidable is not None else ""),
         )
         for c in verdict.checks
     ]
@@ -58,8 +59,11 @@ def check_notes(verdict: Verdict) -> list[str]:
     notes += [f"{c.name}: {c.against} (mean {num(c.baseline_mean)}, sd {num(c.baseline_sd)}, {c.baseline_n} seeds)."
               for c in verdict.checks if c.against != "baseline"]
     for c in verdict.checks:
-        if c.verdict == "inconclusive":
-            seeds = (f"about {c.seeds_needed} seeds per side would detect a difference as large as the margin"
+        if c.undecidable is not None:
+            notes.append(f"{c.name}: cannot decide with {c.candidate_n} vs {c.baseline_n} seeds (needs {c.undecidable} "
+                         "per side): its test cannot reach the level with fewer, so no difference is not evidence.")
+        elif c.verdict == "inconclusive":
+            seeds = (f"about {c.seeds_needed} seeds per side would detect a drop of {num(c.target)}"
                      if c.seeds_needed is not None else "no practical number of seeds would settle it")
             notes.append(f"{c.name}: inconclusive; differences of about {num(c.detectable)} are detectable with these "
                          f"seeds (power {verdict.policy.power:g}); {seeds}.")
@@ -77,17 +81,14 @@ def drift_rows(verdict: Verdict) -> list[tuple[str, str, str]]:
 
 
 def policy_line(verdict: Verdict) -> str:
-    """The gate policy in one line."""
+    """The gate policy in one line: the rule that decides, and each metric's margin in its units."""
     p = verdict.policy
-    parts = [f"alpha {p.alpha:g} (one-sided, Holm)", f"metrics {', '.join(p.metrics)}"]
-    if p.margin is not None:
-        parts.append(f"margin {p.margin:g}")
-    else:
-        share = DEFAULT_MARGIN_SHARE if p.margin_share is None else p.margin_share
-        parts.append(f"margin {share:g} of the span from random-policy return {num(verdict.floor)} "
-                     f"to threshold {num(verdict.threshold)}")
-    if p.ignore_small:
-        parts.append("significant differences inside the margin ignored")
+    rule = DROP_RULES[verdict.gate.rule]
+    parts = [f"rule {rule.name} (fails when {rule.fails_when})", f"alpha {p.alpha:g} (one-sided, Holm)",
+             f"metrics {', '.join(p.metrics)}",
+             "margins " + ", ".join(m.text for m in verdict.scale.margins)]
+    if any(m.basis.endswith("of the span") for m in verdict.scale.margins):
+        parts.append(f"span from random-policy return {num(verdict.floor)} to threshold {num(verdict.threshold)}")
     parts.append("strict: inconclusive fails" if p.strict else "inconclusive does not fail")
     if p.bitwise:
         parts.append("nondeterminism allowed" if p.allow_nondeterminism else "nondeterminism fails")

@@ -55,13 +55,13 @@ def calibration_lines(cal: Calibration) -> dict[str, str]:
         "runs": f"runs: {runs}; curves: {cal.source}",
         "alarms": "false alarms: " + cal.reading,
         "interval": f"interval: {fa.method}.",
-        "power": f"power {p.power:g}, alpha {p.alpha:g}, {cal.group_size} seeds per group. " + ROWS_NOTE,
+        "power": f"gate rule {p.rule}; power {p.power:g}, alpha {p.alpha:g}, {cal.group_size} seeds per group. " + ROWS_NOTE,
         "recommendation": f"recommended metric: {cal.recommendation.metric} — {cal.recommendation.reason}",
         "shows": WHAT_CALIBRATION_SHOWS,
     }
     if cw.count != fa.count:
         lines["worse"] = (f"a check was significantly worse in {cw.count} of {cw.trials} splits ({cw.estimate:.3g}); "
-                          "the gate's failures differ because of the policy's strict or ignore_small setting.")
+                          f"the gate's failures differ because of the policy's rule ({p.rule}) or strict setting.")
     censored = [f"{m.metric}: {m.censored} of {m.seeds} seeds never reach the threshold"
                 for m in cal.metrics if m.censored]
     if censored:

@@ -14,6 +14,7 @@ from __future__ import annotations
 import xml.etree.ElementTree as ET
 
 from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
+from harness.report._rows import policy_line
 
 __all__ = ["render_junit"]
 
@@ -52,6 +53,8 @@ def render_junit(verdict: Verdict) -> str:
     props = ET.Element("properties")
     ET.SubElement(props, "property", name="what_a_pass_means", value=WHAT_A_PASS_MEANS)
     ET.SubElement(props, "property", name="gate", value="passed" if v.passed else "failed")
+    ET.SubElement(props, "property", name="rule", value=v.gate.rule)
+    ET.SubElement(props, "property", name="policy", value=policy_line(v))
     suite.insert(0, props)
     ET.indent(suite)
     return '<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(suite, encoding="unicode") + "\n"

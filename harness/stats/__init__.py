@@ -33,6 +33,7 @@ from harness.stats.bootstrap import (
     bootstrap_mean,
     bootstrap_mean_difference,
 )
+from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES, DropRule, drop_fails
 from harness.stats.equivalence import (
     EquivalenceResult,
     equivalence_test,
@@ -52,6 +53,12 @@ from harness.stats.rank import (
     mann_whitney_censored,
     permutation_test_means,
 )
+from harness.stats.resolution import (
+    minimum_seeds,
+    rounding_tolerance,
+    smallest_pvalue_permutation,
+    smallest_pvalue_rank,
+)
 from harness.stats.sequential import (
     DECISIONS,
     SequentialLook,
@@ -68,11 +75,14 @@ __all__ = [
     "BOOTSTRAP_METHODS",
     "BOUNDARY_KINDS",
     "DECISIONS",
+    "DEFAULT_RULE",
+    "DROP_RULES",
     "AdjustedPValues",
     "BinomialRate",
     "Alternative",
     "BootstrapResult",
     "ConfidenceInterval",
+    "DropRule",
     "EquivalenceResult",
     "HolmResult",
     "MannWhitneyResult",
@@ -92,6 +102,7 @@ __all__ = [
     "bootstrap_performance_profile",
     "bootstrap_probability_of_improvement",
     "bootstrap_task_mean",
+    "drop_fails",
     "equivalence_test",
     "equivalence_test_from_stats",
     "exit_probabilities",
@@ -102,11 +113,13 @@ __all__ = [
     "max_statistic_test",
     "minimum_detectable_difference",
     "performance_profile",
+    "minimum_seeds",
     "permutation_test_means",
     "power_of",
     "probability_of_improvement",
     "ratio_margin",
     "relative_margin",
+    "rounding_tolerance",
     "seeds_needed",
     "sequential_boundaries",
     "sequential_look",
@@ -114,6 +127,8 @@ __all__ = [
     "sequential_test",
     "spending_function",
     "task_mean",
+    "smallest_pvalue_permutation",
+    "smallest_pvalue_rank",
     "welch_test",
     "welch_test_from_stats",
 ]

@@ -16,6 +16,7 @@ from harness.stats._validate import (
     check_probability,
     make_rng,
 )
+from harness.stats.resolution import rounding_tolerance
 
 __all__ = ["MaxStatisticResult", "max_statistic_test"]
 
@@ -108,14 +109,19 @@ def _curves_iv(curves: object, name: str) -> np.ndarray:
     return arr
 
 
-def _welch_t(sum_a, sq_a, n_a, sum_all, sq_all, n_b) -> np.ndarray:
-    """Welch's t per row and checkpoint from group sums of centred values (vectorised)."""
+def _welch_t(sum_a, sq_a, n_a, sum_all, sq_all, n_b, tol) -> np.ndarray:
+    """Welch's t per row and checkpoint from group sums of centred values (vectorised).
+
+    Differences and standard errors at most ``tol`` (the rounding noise of each checkpoint) count as zero.
+    """
     mean_a = sum_a / n_a
     mean_b = (sum_all - sum_a) / n_b
     var_a = np.maximum(sq_a - n_a * mean_a**2, 0.0) / (n_a - 1)
     var_b = np.maximum((sq_all - sq_a) - n_b * mean_b**2, 0.0) / (n_b - 1)
     diff = mean_a - mean_b
+    diff = np.where(np.abs(diff) <= tol, 0.0, diff)
     se = np.sqrt(var_a / n_a + var_b / n_b)
+    se = np.where(se <= tol, 0.0, se)
     with np.errstate(divide="ignore", invalid="ignore"):
         t = np.where(se > 0, diff / se, np.where(diff == 0, 0.0, np.copysign(np.inf, diff)))
     return t
@@ -173,6 +179,11 @@ def max_statistic_test(
     included, whose maximum reaches its statistic (single-step max-T). A
     checkpoint where every seed of both groups has the same value gets ``t = 0``;
     one where each group is constant but the groups differ gets ``t = ±inf``.
+    Differences and spreads within the rounding noise of the checkpoint's values
+    (:func:`harness.stats.resolution.rounding_tolerance`) count as zero. The
+    smallest attainable adjusted p-value is ``1 / C(n_a + n_b, n_a)`` with exact
+    enumeration (:func:`harness.stats.resolution.smallest_pvalue_permutation`):
+    with 2 against 2 seeds it is 1/6, so no checkpoint can be rejected at 0.05.
     Sums are taken of values centred per checkpoint, so large returns with a
     small spread keep their precision.
 
@@ -209,16 +220,17 @@ def max_statistic_test(
     z = x - x.mean(axis=0)
     z2 = z**2
     s_all, q_all = z.sum(axis=0), z2.sum(axis=0)
+    tol = rounding_tolerance(1.0, n_a + n_b) * np.abs(x).max(axis=0)
     sign = {"two-sided": 0.0, "greater": 1.0, "less": -1.0}[alternative]
 
     def oriented(t: np.ndarray) -> np.ndarray:
         return np.abs(t) if sign == 0.0 else sign * t
 
-    t_obs = _welch_t(z[:n_a].sum(axis=0), z2[:n_a].sum(axis=0), n_a, s_all, q_all, n_b)
+    t_obs = _welch_t(z[:n_a].sum(axis=0), z2[:n_a].sum(axis=0), n_a, s_all, q_all, n_b, tol)
     distinct = math.comb(n_a + n_b, n_a)
     exact = distinct <= n_resamples
     maxima = np.concatenate([
-        oriented(_welch_t(m @ z, m @ z2, n_a, s_all, q_all, n_b)).max(axis=1)
+        oriented(_welch_t(m @ z, m @ z2, n_a, s_all, q_all, n_b, tol)).max(axis=1)
         for m in _labellings(n_a, n_a + n_b, n_resamples, exact, gen)
     ])  # fmt: skip
     obs = oriented(t_obs)

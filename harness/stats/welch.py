@@ -17,6 +17,7 @@ from harness.stats._validate import (
     check_positive_int,
     check_probability,
 )
+from harness.stats.resolution import rounding_tolerance
 
 __all__ = ["WelchResult", "welch_test", "welch_test_from_stats"]
 
@@ -78,15 +79,23 @@ def welch_moments(
 ) -> tuple[float, float, float]:
     """Difference, its standard error and the Welch–Satterthwaite df from group moments.
 
-    Both variances zero is the degenerate case: the standard error is 0 and the
-    df is taken as ``n_a + n_b - 2`` (any positive df gives the same verdict).
+    Differences and standard errors within the rounding noise of the data
+    (:func:`harness.stats.resolution.rounding_tolerance` of the larger absolute
+    mean over ``n_a + n_b`` values) count as zero: two groups of the same
+    constant, whose computed means differ in the last bit, have difference 0.
+    A standard error of zero is the degenerate case: the df is then taken as
+    ``n_a + n_b - 2`` (any positive df gives the same verdict).
     """
+    tol = rounding_tolerance(max(abs(mean_a), abs(mean_b)), n_a + n_b)
+    estimate = mean_a - mean_b
+    if abs(estimate) <= tol:
+        estimate = 0.0
     va, vb = var_a / n_a, var_b / n_b
     se = math.sqrt(va + vb)
-    if se == 0.0:
-        return mean_a - mean_b, 0.0, float(n_a + n_b - 2)
+    if se <= tol:
+        return estimate, 0.0, float(n_a + n_b - 2)
     df = (va + vb) ** 2 / (va**2 / (n_a - 1) + vb**2 / (n_b - 1))
-    return mean_a - mean_b, se, df
+    return estimate, se, df
 
 
 def t_pvalue(statistic: float, df: float, alternative: str) -> float:
@@ -113,9 +122,13 @@ def _welch(
     n_b: int,
     alternative: str,
     level: float,
+    null_difference: float = 0.0,
 ) -> WelchResult:
     estimate, se, df = welch_moments(mean_a, var_a, n_a, mean_b, var_b, n_b)
-    statistic = _ratio(estimate, se)
+    shifted = estimate - null_difference
+    if abs(shifted) <= rounding_tolerance(max(abs(mean_a), abs(mean_b), abs(null_difference)), n_a + n_b):
+        shifted = 0.0
+    statistic = _ratio(shifted, se)
     pvalue = t_pvalue(statistic, df, alternative)
     interval = _interval(estimate, se, df, alternative, level)
     alpha = 1.0 - level
@@ -125,9 +138,10 @@ def _welch(
         else f"no significant difference at the {fmt(100 * alpha)}% level"
     )
     degenerate = " (both groups are constant, so the difference is exact)" if se == 0.0 else ""
+    null = f" against a null difference of {fmt(null_difference)}" if null_difference else ""
     reading = (
         f"mean(a) - mean(b) = {fmt(estimate)}, {fmt(100 * level)}% CI {interval}{degenerate}; "
-        f"Welch's t = {fmt(statistic)} on {fmt(df)} df, {side_phrase(alternative)} "
+        f"Welch's t = {fmt(statistic)}{null} on {fmt(df)} df, {side_phrase(alternative)} "
         f"{fmt_p(pvalue)}: {verdict}."
     )
     return WelchResult(
@@ -150,6 +164,7 @@ def welch_test(
     *,
     alternative: Alternative = "two-sided",
     confidence_level: float = 0.95,
+    null_difference: float = 0.0,
 ) -> WelchResult:
     """Welch's unequal-variance t-test of ``mean(a) - mean(b)``.
 
@@ -162,6 +177,12 @@ def welch_test(
     confidence_level
         Level of the interval stored in the result; the reading judges
         significance at ``1 - confidence_level``.
+    null_difference
+        The difference under the null hypothesis, ``d0``: with
+        ``alternative="less"`` and ``d0 = -m`` the test rejects
+        ``H0: mean(a) - mean(b) >= -m``, i.e. shows that ``a`` is lower by more
+        than the margin ``m`` (the non-inferiority test with the roles of the
+        hypotheses exchanged; Wellek 2010, chapter 2).
 
     Returns
     -------
@@ -169,12 +190,14 @@ def welch_test(
 
     Notes
     -----
-    The statistic is ``(mean_a - mean_b) / sqrt(s_a^2/n_a + s_b^2/n_b)`` with
+    The statistic is ``(mean_a - mean_b - d0) / sqrt(s_a^2/n_a + s_b^2/n_b)`` with
     sample variances (``ddof=1``), referred to Student's t with the
     Welch–Satterthwaite degrees of freedom. If both groups are constant the
     standard error is zero: the result is then the documented degenerate case
     ``statistic = 0, pvalue = 1`` for equal constants and ``statistic = ±inf``,
     ``pvalue = 0`` (two-sided) for different ones, with a zero-width interval.
+    Differences and spreads within floating-point resolution count as zero
+    (see :func:`welch_moments`), so near-constant groups never give a huge t.
 
     References
     ----------
@@ -182,6 +205,8 @@ def welch_test(
        several different population variances are involved. Biometrika 34:28–35.
     .. [2] Satterthwaite, F. E. (1946). An approximate distribution of estimates
        of variance components. Biometrics Bulletin 2:110–114.
+    .. [3] Wellek, S. (2010). Testing Statistical Hypotheses of Equivalence and
+       Noninferiority, 2nd ed., chapter 2. Chapman & Hall/CRC.
 
     Examples
     --------
@@ -193,7 +218,7 @@ def welch_test(
     return _welch(
         float(np.mean(x)), float(np.var(x, ddof=1)), x.size,
         float(np.mean(y)), float(np.var(y, ddof=1)), y.size,
-        alternative, level,
+        alternative, level, check_finite_number(null_difference, "null_difference"),
     )  # fmt: skip
 
 
@@ -247,6 +272,7 @@ def welch_test_from_stats(
     se_b: float | None = None,
     alternative: Alternative = "two-sided",
     confidence_level: float = 0.95,
+    null_difference: float = 0.0,
 ) -> WelchResult:
     """Welch's t-test from summary statistics, e.g. a paper's "mean ± sd over n seeds".
 
@@ -258,7 +284,7 @@ def welch_test_from_stats(
         a standard error of the mean instead (likewise for ``b``).
     se_a, se_b
         Standard errors of the means, in place of the standard deviations.
-    alternative, confidence_level
+    alternative, confidence_level, null_difference
         As in :func:`welch_test`.
 
     References
@@ -276,4 +302,4 @@ def welch_test_from_stats(
     moments = summary_moments(mean_a, sd_a, n_a, mean_b, sd_b, n_b, se_a, se_b)
     alternative = check_alternative(alternative)
     level = check_probability(confidence_level, "confidence_level")
-    return _welch(*moments, alternative, level)
+    return _welch(*moments, alternative, level, check_finite_number(null_difference, "null_difference"))
