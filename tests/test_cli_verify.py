@@ -186,7 +186,7 @@ def test_changed_hyperparameter_names_the_key(at):
     assert "config hash differs (1 key changed: settings.step_size)" in out
     row = next(line for line in out.splitlines() if "settings.step_size" in line and "0.001" in line)
     assert "0.1" in row
-    assert "final is significantly worse" in out
+    assert "final fails rule drop-beyond-margin" in out
 
 
 def test_dependency_upgrade_is_verified_statistically(at, tmp_path):
