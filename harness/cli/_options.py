@@ -34,7 +34,7 @@ def positive_float(text: str) -> float:
 
 
 def add_execution_arguments(group: Any) -> None:
-    """``--workers``, ``--executor``, ``--scheduler``, ``--cache-dir`` and ``--no-cache``."""
+    """``--workers``, ``--executor``, ``--scheduler``, ``--cache-dir``, ``--no-cache`` and ``--time-limit``."""
     group.add_argument("--workers", type=positive_int, metavar="N",
                        help="worker processes, or local dask workers (default: one per core)")
     group.add_argument("--executor", choices=EXECUTORS, default="local",
@@ -44,6 +44,8 @@ def add_execution_arguments(group: Any) -> None:
     group.add_argument("--cache-dir", metavar="DIR",
                        help="run cache folder (default: $RLHARNESS_CACHE_DIR or .rlharness-cache)")
     group.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
+    group.add_argument("--time-limit", type=positive_float, metavar="SECONDS",
+                       help="stop a run that trains longer than this and record it failed (exit 3; default: no limit)")
 
 
 def execution_options(args: argparse.Namespace) -> dict[str, Any]:
@@ -64,4 +66,5 @@ def execution_options(args: argparse.Namespace) -> dict[str, Any]:
         "scheduler": args.scheduler,
         "cache": RunCache(args.cache_dir),
         "use_cache": not args.no_cache,
+        "time_limit": args.time_limit,
     }

@@ -15,7 +15,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import add_execution_arguments, execution_options, positive_float
+from harness.cli._options import add_execution_arguments, execution_options
 
 __all__ = ["register"]
 
@@ -34,7 +34,6 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
             outcome = run_manifest(
                 manifest,
                 results_dir=Path(args.results) if args.results else None,
-                time_limit=args.time_limit,
                 on_event=progress,
                 **options,
             )
@@ -55,6 +54,4 @@ def register(subparsers: Any) -> None:
     parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
     parser.add_argument("--results", metavar="DIR", help="results folder (default: results/<manifest name>/)")
     add_execution_arguments(parser)
-    parser.add_argument("--time-limit", type=positive_float, metavar="SECONDS",
-                        help="stop a run that trains longer than this and record it failed (default: no limit)")
     parser.set_defaults(handler=_handle)

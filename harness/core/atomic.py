@@ -1,15 +1,24 @@
-"""Atomic file writes: a reader sees the old file or the complete new one, never a partial write."""
+"""Atomic file writes: a reader sees the old file or the complete new one, never a partial write.
+
+The temporary file is ``.<name>.<pid>.<random>.tmp`` beside the target. A writer killed
+mid-write (SIGKILL, power loss) leaves it behind; no reader ever opens such a file, and
+:func:`sweep_stale_temporaries` removes those whose writing process is gone (the runner
+calls it on its results folder, the run cache on the folder it writes to).
+"""
 
 from __future__ import annotations
 
 import contextlib
 import os
+import re
 import stat
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 
-__all__ = ["atomic_path", "atomic_write_text"]
+__all__ = ["atomic_path", "atomic_write_text", "sweep_stale_temporaries"]
+
+_TEMPORARY = re.compile(r"^\..+\.(?P<pid>[0-9]+)\.[^.]+\.tmp$")
 
 
 @contextlib.contextmanager
@@ -22,7 +31,7 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     """
     target = Path(path)
     mode = stat.S_IMODE(target.stat().st_mode) if target.exists() else 0o644
-    handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
+    handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.{os.getpid()}.", suffix=".tmp")
     os.close(handle)
     try:
         yield Path(temporary)
@@ -39,3 +48,35 @@ def atomic_write_text(path: str | os.PathLike, text: str) -> None:
         stream.write(text)
         stream.flush()
         os.fsync(stream.fileno())
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's live process
+        return True
+    return True
+
+
+def sweep_stale_temporaries(folder: str | os.PathLike) -> int:
+    """Remove the temporary files of :func:`atomic_path` in ``folder`` whose writer is no longer running.
+
+    A live writer's temporary file is left alone (its process id is in the name), so two
+    runners sharing a folder on one machine do not disturb each other. Returns how many
+    files were removed.
+    """
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    for entry in entries:
+        match = _TEMPORARY.match(entry.name)
+        if match is None or not entry.is_file(follow_symlinks=False) or _alive(int(match["pid"])):
+            continue
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(entry.path)
+            removed += 1
+    return removed

@@ -8,6 +8,8 @@ from collections.abc import Iterable, Sequence
 
 import numpy as np
 
+from harness.core.jsondata import as_int, as_mapping, as_number
+
 __all__ = ["Checkpoint", "LearningCurve"]
 
 
@@ -63,13 +65,21 @@ class LearningCurve:
 
     @classmethod
     def from_json(cls, data: dict) -> LearningCurve:
+        """Read back :meth:`to_json`; ``ValueError`` names a step that is not a non-negative integer
+        or a return that is not a finite number (booleans are neither)."""
+        data = as_mapping(data, "curve")
         steps: Sequence[int] = data["steps"]
         returns: Sequence[Sequence[float]] = data["returns"]
+        if not isinstance(steps, list) or not isinstance(returns, list):
+            raise ValueError("[curve.steps] and [curve.returns] must be lists")
         if len(steps) != len(returns):
             raise ValueError(f"curve has {len(steps)} steps but {len(returns)} return lists")
-        return cls(
-            tuple(
-                Checkpoint(int(s), tuple(float(r) for r in rs))
-                for s, rs in zip(steps, returns, strict=True)
-            )
-        )
+        if not steps:
+            raise ValueError("[curve.steps] is empty: a curve has at least one checkpoint")
+        checkpoints = []
+        for n, (s, rs) in enumerate(zip(steps, returns, strict=True)):
+            if not isinstance(rs, list):
+                raise ValueError(f"[curve.returns[{n}]] must be a list of numbers, got {type(rs).__name__}")
+            checkpoints.append(Checkpoint(as_int(s, f"curve.steps[{n}]", minimum=0),
+                                          tuple(as_number(r, f"curve.returns[{n}]") for r in rs)))
+        return cls(tuple(checkpoints))

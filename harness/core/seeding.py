@@ -22,7 +22,10 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from harness.core.jsondata import as_int, as_mapping
+
 __all__ = [
+    "MAX_SEEDS",
     "STREAM_NAMES",
     "RunSeed",
     "RunStreams",
@@ -37,6 +40,11 @@ __all__ = [
 #: Names of the per-run streams, in spawn order. Appending a name keeps the
 #: earlier streams unchanged (SeedSequence children are positional).
 STREAM_NAMES = ("init", "explore", "replay", "env")
+
+#: The most seeds one manifest may plan. Far more than any statistical check needs (hundreds
+#: settle differences a tenth of a seed-to-seed sd), and small enough that planning, the
+#: results folder (a file per seed) and the reports stay quick.
+MAX_SEEDS = 10_000
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -62,7 +70,13 @@ class RunSeed:
 
     @classmethod
     def from_json(cls, data: dict) -> RunSeed:
-        return cls(int(data["entropy"]), tuple(int(k) for k in data["spawn_key"]))
+        """Read back :meth:`to_json`; ``ValueError`` names a field that is not a non-negative integer."""
+        data = as_mapping(data, "seed")
+        keys = data["spawn_key"]
+        if not isinstance(keys, list):
+            raise ValueError(f"[seed.spawn_key] must be a list of integers, got {type(keys).__name__}")
+        return cls(as_int(data["entropy"], "seed.entropy", minimum=0),
+                   tuple(as_int(k, "seed.spawn_key", minimum=0) for k in keys))
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -104,6 +118,8 @@ def plan_seeds(
         values = [validate_seed(s, name=f"seeds[{i}]") for i, s in enumerate(seeds)]
         if not values:
             raise ValueError("`seeds` must list at least one seed, got []")
+        if len(values) > MAX_SEEDS:
+            raise ValueError(f"`seeds` lists {len(values)} seeds; at most {MAX_SEEDS} are allowed")
         dupes = sorted({v for v in values if values.count(v) > 1})
         if dupes:
             raise ValueError(f"`seeds` must not repeat a seed, got duplicates {dupes}")
@@ -111,6 +127,8 @@ def plan_seeds(
     n = validate_seed(count, name="count")
     if n < 1:
         raise ValueError(f"`count` must be a positive integer, got {count!r}")
+    if n > MAX_SEEDS:
+        raise ValueError(f"`count` is {n}; at most {MAX_SEEDS} seeds are allowed")
     if root is None:
         raise ValueError("`root` is required with `count`")
     r = validate_seed(root, name="root")

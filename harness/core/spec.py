@@ -13,6 +13,7 @@ import json
 from collections.abc import Mapping
 from typing import Any
 
+from harness.core.jsondata import as_int, as_mapping, as_number, as_str
 from harness.core.seeding import RunSeed, RunStreams, episode_seeds, run_streams
 
 __all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "config_changes", "sha256_of"]
@@ -77,7 +78,10 @@ class TaskSpec:
 
     @classmethod
     def from_json(cls, data: Mapping) -> TaskSpec:
-        return cls(data["id"], dict(data["kwargs"]), data["max_episode_steps"])
+        data = as_mapping(data, "task")
+        limit = data["max_episode_steps"]
+        return cls(as_str(data["id"], "task.id"), dict(as_mapping(data["kwargs"], "task.kwargs")),
+                   None if limit is None else as_int(limit, "task.max_episode_steps", minimum=1))
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -115,7 +119,16 @@ class EvaluationPlan:
 
     @classmethod
     def from_json(cls, data: Mapping) -> EvaluationPlan:
-        return cls(**data)
+        data = as_mapping(data, "evaluation")
+        unknown = set(data) - {"interval", "episodes", "seed", "epsilon"}
+        if unknown:
+            raise ValueError(f"[evaluation] has unknown keys {sorted(unknown)}")
+        epsilon = as_number(data.get("epsilon", 0.0), "evaluation.epsilon")
+        if not 0.0 <= epsilon <= 1.0:
+            raise ValueError(f"[evaluation.epsilon] must be in [0, 1], got {epsilon}")
+        return cls(as_int(data["interval"], "evaluation.interval", minimum=1),
+                   as_int(data["episodes"], "evaluation.episodes", minimum=1),
+                   as_int(data.get("seed", 0), "evaluation.seed", minimum=0), epsilon)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -175,14 +188,16 @@ class RunSpec:
 
     @classmethod
     def from_json(cls, data: Mapping) -> RunSpec:
+        """Read back :meth:`to_json`; ``ValueError`` names a field of the wrong type or range."""
+        data = as_mapping(data, "spec")
         return cls(
-            manifest=data["manifest"],
+            manifest=as_str(data["manifest"], "spec.manifest"),
             task=TaskSpec.from_json(data["task"]),
-            trainer=data["trainer"],
-            config=dict(data["config"]),
-            budget=int(data["budget"]),
+            trainer=as_str(data["trainer"], "spec.trainer"),
+            config=dict(as_mapping(data["config"], "spec.config")),
+            budget=as_int(data["budget"], "spec.budget", minimum=1),
             evaluation=EvaluationPlan.from_json(data["evaluation"]),
             seed=RunSeed.from_json(data["seed"]),
-            index=int(data["index"]),
-            config_hash=data["config_hash"],
+            index=as_int(data["index"], "spec.index", minimum=0),
+            config_hash=as_str(data["config_hash"], "spec.config_hash"),
         )

@@ -28,14 +28,11 @@ lock and takes the result from the cache.
 from __future__ import annotations
 
 import bisect
-import contextlib
 import dataclasses
 import os
-import signal
-import threading
 import time
 from collections import deque
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from multiprocessing.context import BaseContext
 from pathlib import Path
 
@@ -43,6 +40,8 @@ from filelock import FileLock, Timeout
 
 from harness.store.cache import RunCache
 from harness.core.errors import ResultsError
+from harness.core.atomic import sweep_stale_temporaries
+from harness.core.interrupt import sigterm_as_interrupt
 from harness.execute import Executor, RunEvent, Task, WorkerResult, make_executor
 from harness.execute.work import lockstep_size, run_versions
 from harness.core.spec import RunSpec
@@ -126,23 +125,6 @@ def _options_iv(time_limit: float | None, cache: object, on_event: object) -> No
         raise TypeError(f"`on_event` must be callable or None, got {type(on_event).__name__} {on_event!r}")
     if time_limit is not None and (isinstance(time_limit, bool) or not isinstance(time_limit, (int, float)) or not time_limit > 0):
         raise ValueError(f"`time_limit` must be a positive number of seconds or None, got {time_limit!r}")
-
-
-@contextlib.contextmanager
-def _sigterm_as_interrupt() -> Iterator[None]:
-    """Turn SIGTERM into KeyboardInterrupt while running, so both stop the same clean way."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-
-    def handler(signum, frame):
-        raise KeyboardInterrupt(f"received signal {signal.Signals(signum).name}")
-
-    previous = signal.signal(signal.SIGTERM, handler)
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
 
 
 def _drop_stale_index(folder: Path, manifest: str, config_hash: str) -> None:
@@ -444,6 +426,7 @@ def run_plans(
         offset += len(plan.specs)
         with FileLock(str(plan.results_dir / _LOCK_FILE)):
             _drop_stale_index(plan.results_dir, plan.specs[0].manifest, plan.specs[0].config_hash)
+            sweep_stale_temporaries(plan.results_dir)  # left by a runner killed mid-write
     for run in runs:
         for spec in run.specs:
             run.emit(RunEvent("planned", spec.index, spec.seed.label, budget=spec.budget))
@@ -461,7 +444,7 @@ def run_plans(
         if todo[id(run)]:  # files are about to change: until the new index is written, the folder has none
             with FileLock(str(run.folder / _LOCK_FILE)):
                 (run.folder / INDEX_FILE).unlink(missing_ok=True)
-    with _sigterm_as_interrupt():
+    with sigterm_as_interrupt():
         pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if sizes else None
         try:
             if pool is not None:

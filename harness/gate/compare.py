@@ -138,12 +138,16 @@ class MetricCheck:
             return (f"{self.title}: cannot decide with {self.candidate_n} vs {self.baseline_n} seeds (needs "
                     f"{self.undecidable} per side): its test ({self.method.split(';')[0]}) cannot reach the level "
                     f"with fewer — difference {diff}.")
-        return (
-            f"{self.title}: inconclusive — difference {diff} is neither significant nor inside the margin "
-            f"±{self.margin:.4g}; with these seeds only differences of about {self.detectable:.4g} are detectable, "
-            + (f"about {self.seeds_needed} seeds per side would detect a drop of {self.target:.4g}."
-               if self.seeds_needed is not None else f"no practical number of seeds would detect a drop of {self.target:.4g}.")
-        )
+        if self.detectable is None:
+            power = ("neither side varies across seeds (every value equal, e.g. no seed reaches the threshold), "
+                     "so no power figure exists.")
+        else:
+            power = (f"with these seeds only differences of about {self.detectable:.4g} are detectable, "
+                     + (f"about {self.seeds_needed} seeds per side would detect a drop of {self.target:.4g}."
+                        if self.seeds_needed is not None else
+                        f"no practical number of seeds would detect a drop of {self.target:.4g}."))
+        return (f"{self.title}: inconclusive — difference {diff} is neither significant nor inside the margin "
+                f"±{self.margin:.4g}; {power}")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -329,9 +333,10 @@ def _finish(raw: _Raw, p: tuple[float, float, float], reject: tuple[bool, bool, 
     # significantly beyond the margin, so the figure is for twice the margin (the same sample size).
     beyond_rule = policy.rule == "drop-beyond-margin"
     detectable = needed = None
-    if verdict == "inconclusive" and raw.undecidable is None:
-        sd_b, n_b = raw.base[1], raw.base[2]
-        sd_c, n_c = raw.cand[1], raw.cand[2]
+    sd_b, n_b = raw.base[1], raw.base[2]
+    sd_c, n_c = raw.cand[1], raw.cand[2]
+    # With no spread on either side (e.g. no seed ever reaches the threshold) power is not defined.
+    if verdict == "inconclusive" and raw.undecidable is None and not sd_b == sd_c == 0.0:
         detectable = float(stats.minimum_detectable_difference(sd_c, n_c, sd_b, n_b, alpha=alpha, power=policy.power,
                                                                alternative="greater"))
         detectable += raw.margin if beyond_rule else 0.0

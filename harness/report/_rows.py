@@ -62,6 +62,8 @@ def check_notes(verdict: Verdict) -> list[str]:
         if c.undecidable is not None:
             notes.append(f"{c.name}: cannot decide with {c.candidate_n} vs {c.baseline_n} seeds (needs {c.undecidable} "
                          "per side): its test cannot reach the level with fewer, so no difference is not evidence.")
+        elif c.verdict == "inconclusive" and c.detectable is None:
+            notes.append(f"{c.name}: inconclusive; every value is equal on both sides, so no power figure exists.")
         elif c.verdict == "inconclusive":
             seeds = (f"about {c.seeds_needed} seeds per side would detect a drop of {num(c.target)}"
                      if c.seeds_needed is not None else "no practical number of seeds would settle it")

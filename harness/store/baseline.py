@@ -28,6 +28,7 @@ from harness import __version__
 from harness.core.atomic import atomic_write_text
 from harness.core.curves import LearningCurve
 from harness.core.errors import BaselineError
+from harness.core.jsondata import as_mapping, as_str, loads_strict
 from harness.core.seeding import RunSeed
 from harness.core.spec import sha256_of
 from harness.store.results import ResultSet
@@ -273,6 +274,42 @@ def _describe_existing(path: Path) -> str:
         return "an unreadable file"
 
 
+def _strings(value: Any, key: str) -> dict[str, str]:
+    return {as_str(k, key): as_str(v, f"{key}.{k}") for k, v in as_mapping(value, key).items()}
+
+
+def _list(value: Any, key: str) -> list:
+    if not isinstance(value, list):
+        raise ValueError(f"[{key}] must be a list, got {type(value).__name__}")
+    return value
+
+
+def _check_meaning(baseline: Baseline) -> None:
+    """What a checksum cannot show (anyone can recompute it): the content must make sense.
+
+    At least one run; no seed twice; the config hash is the hash of the stored config; the runs
+    are the config's seeds, in order (no run dropped without saying so); every curve on one grid.
+    """
+    if not baseline.runs:
+        raise ValueError("[runs] is empty: a baseline holds at least one seed's curve")
+    labels = [r.seed.label for r in baseline.runs]
+    twice = sorted({label for label in labels if labels.count(label) > 1})
+    if twice:
+        raise ValueError(f"[runs] lists seed {', '.join(twice)} more than once")
+    if sha256_of(baseline.config) != baseline.config_hash:
+        raise ValueError(f"[config_hash] {baseline.config_hash} is not the hash of [config] ({sha256_of(baseline.config)})")
+    planned = baseline.config.get("seeds")
+    if isinstance(planned, list):
+        seeds = [RunSeed.from_json(s) for s in planned]
+        if seeds != [r.seed for r in baseline.runs]:
+            raise ValueError(f"[runs] holds {len(baseline.runs)} seeds ({', '.join(labels[:5])}...), but [config.seeds] "
+                             f"plans {len(seeds)} ({', '.join(s.label for s in seeds[:5])}...): a run was dropped, added "
+                             "or reordered")
+    grids = {tuple(c.step for c in r.curve.checkpoints) for r in baseline.runs}
+    if len(grids) != 1:
+        raise ValueError(f"[runs] curves have different checkpoint grids: {sorted(grids)[:2]}")
+
+
 def read_baseline(path: str | os.PathLike, *, manifest_name: str | None = None) -> Baseline:
     """Read and check a baseline file.
 
@@ -309,12 +346,15 @@ def parse_baseline(text: str, *, path: str | os.PathLike, manifest_name: str | N
     """
     path = Path(path)
     try:
-        data = json.loads(text)
+        data = loads_strict(text)
     except json.JSONDecodeError as exc:
         raise BaselineError(
             f"{path}: is truncated or not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}); "
             f"restore it from version control or {_RECORD_FIX} --overwrite"
         ) from None
+    except ValueError as exc:  # NaN/Infinity literals, overflowing numbers, huge integers, deep nesting
+        raise BaselineError(f"{path}: is not a baseline rl-harness wrote ({exc}); restore it from version control "
+                            f"or {_RECORD_FIX} --overwrite") from None
     if not isinstance(data, dict) or data.get("schema") != BASELINE_SCHEMA:
         found = data.get("schema") if isinstance(data, dict) else type(data).__name__
         raise BaselineError(f"{path}: [schema] is {found!r}, expected {BASELINE_SCHEMA!r}: not a baseline of this version")
@@ -327,20 +367,22 @@ def parse_baseline(text: str, *, path: str | os.PathLike, manifest_name: str | N
         )
     try:
         baseline = Baseline(
-            manifest=str(data["manifest"]),
-            config_hash=str(data["config_hash"]),
-            config=data["config"],
-            versions={str(k): str(v) for k, v in data["versions"].items()},
-            platform={str(k): str(v) for k, v in data["platform"].items()},
-            recording={str(k): str(v) for k, v in data.get("recording", {}).items()},
-            recorded=str(data["recorded"]),
-            harness_version=str(data["harness_version"]),
-            recorder=None if data.get("recorder") is None else str(data["recorder"]),
+            manifest=as_str(data["manifest"], "manifest"),
+            config_hash=as_str(data["config_hash"], "config_hash"),
+            config=as_mapping(data["config"], "config"),
+            versions=_strings(data["versions"], "versions"),
+            platform=_strings(data["platform"], "platform"),
+            recording=_strings(data.get("recording", {}), "recording"),
+            recorded=as_str(data["recorded"], "recorded"),
+            harness_version=as_str(data["harness_version"], "harness_version"),
+            recorder=None if data.get("recorder") is None else as_str(data["recorder"], "recorder"),
             runs=tuple(
-                SeedCurve(RunSeed.from_json(r["seed"]), LearningCurve.from_json(r["curve"])) for r in data["runs"]
+                SeedCurve(RunSeed.from_json(as_mapping(r, "runs")["seed"]), LearningCurve.from_json(r["curve"]))
+                for r in _list(data["runs"], "runs")
             ),
             path=path,
         )
+        _check_meaning(baseline)
     except (KeyError, TypeError, ValueError, AttributeError) as exc:
         raise BaselineError(f"{path}: malformed content ({type(exc).__name__}: {exc}); {_RECORD_FIX} --overwrite") from None
     if manifest_name is not None and baseline.manifest != manifest_name:

@@ -30,7 +30,7 @@ from filelock import FileLock
 from harness import __version__
 from harness.core.errors import ResultsError
 from harness.core.spec import RunSpec, sha256_of
-from harness.core.atomic import atomic_write_text
+from harness.core.atomic import atomic_write_text, sweep_stale_temporaries
 from harness.store.results import RunRecord, record_from_json, record_text, same_spec
 
 __all__ = ["DEFAULT_CACHE_DIR", "RunCache", "cache_key"]
@@ -123,6 +123,7 @@ class RunCache:
         self._ensure()
         path = self._entry(cache_key(record.spec, record.versions))
         path.parent.mkdir(parents=True, exist_ok=True)
+        sweep_stale_temporaries(path.parent)  # left by a writer killed mid-write
         atomic_write_text(path, record_text(record))
         return path
 

@@ -34,6 +34,7 @@ from typing import Any
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.core.atomic import atomic_write_text
 from harness.core.errors import ResultsError
+from harness.core.jsondata import as_int, as_mapping, as_number, as_str, loads_strict
 from harness.core.spec import RunSpec, canonical_json
 
 __all__ = [
@@ -178,19 +179,28 @@ def record_from_json(data: Any, *, where: str) -> RunRecord:
     try:
         curve = None
         if data["curve"] is not None:
+            if not isinstance(data["curve"], list) or not data["curve"]:
+                raise ValueError("[curve] must be a non-empty list of checkpoints or null")
             checkpoints = []
-            for c in data["curve"]:
-                cp = Checkpoint(int(c["step"]), tuple(float(r) for r in c["returns"]))
-                if not math.isclose(cp.mean, float(c["mean"]), rel_tol=1e-12, abs_tol=1e-12):
+            for n, c in enumerate(data["curve"]):
+                c = as_mapping(c, f"curve[{n}]")
+                returns = c["returns"]
+                if not isinstance(returns, list):
+                    raise ValueError(f"[curve[{n}].returns] must be a list of numbers")
+                cp = Checkpoint(as_int(c["step"], f"curve[{n}].step", minimum=0),
+                                tuple(as_number(r, f"curve[{n}].returns") for r in returns))
+                if not math.isclose(cp.mean, as_number(c["mean"], f"curve[{n}].mean"), rel_tol=1e-12, abs_tol=1e-12):
                     raise ValueError(f"checkpoint at step {cp.step}: stored mean {c['mean']} != mean of returns {cp.mean}")
                 checkpoints.append(cp)
             curve = LearningCurve(tuple(checkpoints))
+        failure = data["failure"]
         return RunRecord(
             spec=RunSpec.from_json(data["spec"]),
-            status=data["status"],
+            status=as_str(data["status"], "status"),
             curve=curve,
-            failure=data["failure"],
-            versions={str(k): str(v) for k, v in data["versions"].items()},
+            failure=None if failure is None else as_str(failure, "failure"),
+            versions={as_str(k, "versions"): as_str(v, f"versions.{k}")
+                      for k, v in as_mapping(data["versions"], "versions").items()},
         )
     except (KeyError, TypeError, ValueError, AttributeError) as exc:
         raise ResultsError(f"{where}: malformed run record ({type(exc).__name__}: {exc}); delete it and run the manifest again") from exc
@@ -201,10 +211,12 @@ def _load_json(path: Path) -> tuple[Any, str]:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise ResultsError(f"{path}: file not found; run the manifest (`rlharness run`) to create it") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ResultsError(f"{path}: cannot be read ({exc}); delete it and run the manifest again") from None
     try:
-        return json.loads(text), text
-    except json.JSONDecodeError as exc:
-        raise ResultsError(f"{path}: not valid JSON ({exc}); the file is damaged, delete it and run the manifest again") from exc
+        return loads_strict(text), text
+    except ValueError as exc:
+        raise ResultsError(f"{path}: not valid JSON ({exc}); the file is damaged, delete it and run the manifest again") from None
 
 
 def write_record(folder: str | os.PathLike, record: RunRecord) -> Path:
@@ -313,9 +325,13 @@ def read_results(folder: str | os.PathLike) -> ResultSet:
     index = read_index(folder)
     where = folder / INDEX_FILE
     try:
-        manifest, config_hash, runs = index["manifest"], index["config_hash"], index["runs"]
-        entries = [(str(e["file"]), str(e["sha256"])) for e in runs]
-    except (KeyError, TypeError) as exc:
+        manifest, config_hash = as_str(index["manifest"], "manifest"), as_str(index["config_hash"], "config_hash")
+        runs = index["runs"]
+        if not isinstance(runs, list) or not runs:
+            raise ValueError("[runs] must be a non-empty list")
+        entries = [(as_str(e["file"], f"runs[{n}].file"), as_str(e["sha256"], f"runs[{n}].sha256"))
+                   for n, e in enumerate(runs)]
+    except (KeyError, TypeError, ValueError) as exc:
         raise ResultsError(f"{where}: malformed index ({type(exc).__name__}: {exc}); run the manifest again") from exc
     records = []
     for position, (name, digest) in enumerate(entries):
@@ -334,5 +350,8 @@ def read_results(folder: str | os.PathLike) -> ResultSet:
                 f"{path}: belongs to {record.spec.manifest!r} seed #{record.spec.index} ({record.spec.config_hash}), "
                 f"but {where} lists it as {manifest!r} seed #{position} ({config_hash}); run the manifest again"
             )
+        if any(r.spec.seed == record.spec.seed for r in records):
+            raise ResultsError(f"{path}: [spec.seed] {record.spec.seed.label} is also the seed of an earlier run in "
+                               f"{where}: a seed counts once; the folder was edited, run the manifest again")
         records.append(record)
     return ResultSet(manifest=manifest, config_hash=config_hash, records=tuple(records))

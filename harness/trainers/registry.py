@@ -29,12 +29,14 @@ from typing import Any
 
 from harness.core import config
 from harness.core.errors import ConfigError, ManifestError, did_you_mean
+from harness.trainers.fingerprint import source_files
 
 __all__ = [
     "BUILTIN_TRAINERS",
     "ENTRY_POINT_RE",
     "Trainer",
     "TrainerSpec",
+    "ModuleCodeError",
     "load_entry_point",
     "resolve_trainer",
 ]
@@ -123,6 +125,10 @@ def _import(module_name: str, search_path: Path | None) -> types.ModuleType:
         sys.path.remove(str(search_path))
 
 
+class ModuleCodeError(ImportError):
+    """A module's own code raised an exception, or called ``sys.exit``, while it was imported."""
+
+
 def load_entry_point(entry: str, *, search_path: str | Path | None = None) -> Any:
     """Import ``"package.module:attr"`` and return the attribute.
 
@@ -139,14 +145,22 @@ def load_entry_point(entry: str, *, search_path: str | Path | None = None) -> An
     ValueError
         If ``entry`` is not of the form ``"module:attr"``.
     ImportError
-        If the module cannot be imported.
+        If the module cannot be imported; :class:`ModuleCodeError` if its code raised or
+        exited (``sys.exit``) while being imported.
     AttributeError
         If the module has no such attribute (the message suggests close names).
     """
     match = ENTRY_POINT_RE.match(entry) if isinstance(entry, str) else None
     if match is None:
         raise ValueError(f"entry point must look like 'package.module:function', got {entry!r}")
-    module = _import(match["module"], Path(search_path) if search_path is not None else None)
+    try:
+        module = _import(match["module"], Path(search_path) if search_path is not None else None)
+    except ImportError:
+        raise
+    except (Exception, SystemExit) as exc:  # the module's own code raised, or called sys.exit, on import
+        raise ModuleCodeError(
+            f"module {match['module']!r} raised {type(exc).__name__} while being imported: {exc}", name=match["module"]
+        ) from exc
     attr = match["attr"]
     if not hasattr(module, attr):
         public = [n for n in dir(module) if not n.startswith("_")]
@@ -209,6 +223,11 @@ def resolve_trainer(
         function = load_entry_point(name, search_path=search_path)
     except ValueError as exc:
         raise ManifestError(str(exc), path=path, key=key) from None
+    except ModuleCodeError as exc:
+        raise ManifestError(
+            f"importing the trainer's module failed: {exc}; fix the module (`python -c \"import "
+            f"{exc.name}\"` in its folder shows the traceback)", path=path, key=key,
+        ) from None
     except ImportError as exc:
         where = f" or in {str(search_path)!r}" if search_path is not None else ""
         raise ManifestError(
@@ -220,6 +239,12 @@ def resolve_trainer(
         raise ManifestError(f"{exc} Name the trainer function after the colon.", path=path, key=key) from None
     if not callable(function):
         raise ManifestError(f"{name!r} is not a function: it must be train(run) -> checkpoints", path=path, key=key)
+    if not source_files(function):
+        raise ManifestError(
+            f"{name!r} has no Python source file (a builtin or compiled module), so runs of it cannot be told apart "
+            "from runs of other code; a trainer must be a function in a .py module",
+            path=path, key=key,
+        )
     settings_type = getattr(function, "settings_type", None)
     if settings_type is not None and not (isinstance(settings_type, type) and dataclasses.is_dataclass(settings_type)):
         raise ManifestError(
