@@ -42,7 +42,7 @@ from harness.gate.margins import GateScale, task_scale
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.store.baseline import Baseline, read_baseline
 from harness.store.history import BaselineHistory
-from harness.store.results import TRAINER_SOURCE
+from harness.store.results import TRAINER_SOURCE, same_spec
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
@@ -432,6 +432,13 @@ def verify_manifest(
             raise BaselineError(f"{baseline.path}: [manifest] is {baseline.manifest!r}, not {manifest.name!r}: "
                                 f"pass the baseline of {manifest.name!r}")
         check_grid(manifest, baseline)
+    for planned, record in zip(manifest.runs(), results.records):
+        if not same_spec(planned, record.spec):  # the config hash is only a claim in the files: check the runs
+            raise ResultsError(
+                f"the stored run of seed {record.spec.seed.label} is not the manifest's run #{planned.index} "
+                f"(seed {planned.seed.label}) although [config_hash] matches: the results were edited; run the "
+                "manifest again (`rlharness verify` without --no-run)"
+            )
     candidate = CurveSet.from_results(results, label=candidate_label or f"rerun of {manifest.name}",
                                       config=manifest.resolved_config(), expected=len(manifest.seeds))
     references = tuple(manifest.references)
