@@ -10,6 +10,7 @@ per seed through the config: ``{"bad": [labels], "mode": ...}``.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import signal
 import time
@@ -17,7 +18,7 @@ from pathlib import Path
 
 from harness.core.curves import Checkpoint
 from harness.core.seeding import plan_seeds
-from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, plan_config, sha256_of
 
 
 def toy(run: RunSpec):
@@ -71,13 +72,9 @@ def toy_specs(
     task = TaskSpec("CartPole-v1", {}, 500)
     evaluation = EvaluationPlan(interval=25, episodes=3, seed=1)
     seeds = plan_seeds(count=n, root=7)
-    config_hash = sha256_of(
-        {"task": task.to_json(), "trainer": trainer, "config": config, "budget": budget,
-         "evaluation": evaluation.to_json(), "seeds": [s.to_json() for s in seeds]}
-    )
-    return tuple(
-        RunSpec(name, task, trainer, config, budget, evaluation, seed, i, config_hash) for i, seed in enumerate(seeds)
-    )
+    specs = [RunSpec(name, task, trainer, config, budget, evaluation, seed, i, "") for i, seed in enumerate(seeds)]
+    config_hash = sha256_of(plan_config(specs))  # as a manifest's loader computes it
+    return tuple(dataclasses.replace(s, config_hash=config_hash) for s in specs)
 
 
 def folder_bytes(folder: Path) -> dict[str, bytes]:

@@ -182,3 +182,12 @@ def test_verify_no_run_refuses_stored_runs_that_differ_from_the_manifests_despit
     code, text = _cli("verify", recorded / "m.toml", "--no-run", "--results", folder, "--baselines", recorded / "bl")
     assert code == ExitCode.BAD_INPUT, text
     assert "seed 7/2 is not the manifest's run #2" in text
+
+
+def test_the_hash_readers_recompute_is_the_manifests_config_hash():
+    from harness.core.spec import plan_config
+    from harness.manifest.loader import load_manifest
+
+    for path in sorted((Path(__file__).parent.parent / "manifests").glob("*.toml")):
+        manifest = load_manifest(path)
+        assert sha256_of(plan_config(manifest.runs())) == manifest.config_hash == sha256_of(manifest.resolved_config())

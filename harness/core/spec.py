@@ -10,13 +10,13 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 from harness.core.jsondata import as_int, as_mapping, as_number, as_str
 from harness.core.seeding import RunSeed, RunStreams, episode_seeds, run_streams
 
-__all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "config_changes", "sha256_of"]
+__all__ = ["EvaluationPlan", "RunSpec", "TaskSpec", "canonical_json", "config_changes", "plan_config", "sha256_of"]
 
 
 def canonical_json(value: Any) -> str:
@@ -201,3 +201,21 @@ class RunSpec:
             index=as_int(data["index"], "spec.index", minimum=0),
             config_hash=as_str(data["config_hash"], "spec.config_hash"),
         )
+
+
+def plan_config(specs: Sequence[RunSpec]) -> dict:
+    """The resolved configuration of a manifest's complete plan (its runs in seed order).
+
+    It is what ``harness.manifest.Manifest.resolved_config`` gives for the manifest the runs came
+    from, so ``sha256_of(plan_config(runs))`` is their ``config_hash``: a reader of stored runs
+    checks the hash against the runs themselves rather than trusting the claim.
+    """
+    first = specs[0].to_json()
+    return {
+        "task": first["task"],
+        "trainer": first["trainer"],
+        "settings": first["config"],
+        "budget": first["budget"],
+        "evaluation": first["evaluation"],
+        "seeds": [s.seed.to_json() for s in specs],
+    }

@@ -18,7 +18,7 @@ import numpy as np
 from harness.store.baseline import Baseline, SeedCurve
 from harness.store.results import ResultSet
 from harness.core.errors import ResultsError, RunFailedError
-from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
+from harness.core.spec import EvaluationPlan, TaskSpec, plan_config
 
 __all__ = ["CurveSet", "last_line", "random_policy_return", "task_threshold"]
 
@@ -107,19 +107,11 @@ class CurveSet:
             )
         first = done[0].spec
         versions = {k: v for r in done for k, v in r.versions.items()}
-        if config is None:  # read from data: the hash must be that of the runs it lists (anyone can edit both)
-            config = _config_of_specs([r.spec for r in done])
-            if sha256_of(config) != results.config_hash:
-                raise ResultsError(
-                    f"{label}: [config_hash] {results.config_hash} is not the hash of the configuration its "
-                    f"{len(done)} runs describe ({sha256_of(config)}): a run was edited, dropped or added; run the "
-                    "manifest again into a fresh folder"
-                )
         return cls(
             label=label,
             manifest=results.manifest,
             config_hash=results.config_hash,
-            config=config,
+            config=config if config is not None else plan_config([r.spec for r in done]),
             versions=versions,
             runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in done),
             budget=first.budget,
@@ -136,18 +128,6 @@ class CurveSet:
     def curve_matrix(self) -> np.ndarray:
         """Mean evaluation return per seed and checkpoint, shape ``(n_seeds, n_checkpoints)``."""
         return np.stack([r.curve.means for r in self.runs])
-
-
-def _config_of_specs(specs: Sequence[RunSpec]) -> dict[str, Any]:
-    first = specs[0].to_json()
-    return {
-        "task": first["task"],
-        "trainer": first["trainer"],
-        "settings": first["config"],
-        "budget": first["budget"],
-        "evaluation": first["evaluation"],
-        "seeds": [s.seed.to_json() for s in specs],
-    }
 
 
 def task_threshold(task: TaskSpec) -> float | None:

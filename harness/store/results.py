@@ -35,7 +35,7 @@ from harness.core.curves import Checkpoint, LearningCurve
 from harness.core.atomic import atomic_write_text
 from harness.core.errors import ResultsError
 from harness.core.jsondata import as_int, as_mapping, as_number, as_str, loads_strict
-from harness.core.spec import RunSpec, canonical_json
+from harness.core.spec import RunSpec, canonical_json, plan_config, sha256_of
 
 __all__ = [
     "INDEX_FILE",
@@ -354,4 +354,10 @@ def read_results(folder: str | os.PathLike) -> ResultSet:
             raise ResultsError(f"{path}: [spec.seed] {record.spec.seed.label} is also the seed of an earlier run in "
                                f"{where}: a seed counts once; the folder was edited, run the manifest again")
         records.append(record)
+    planned = sha256_of(plan_config([r.spec for r in records]))
+    if planned != config_hash:  # the hash is only a claim in the files: check it against the runs they hold
+        raise ResultsError(
+            f"{where}: [config_hash] {config_hash} is not the hash of the configuration its {len(records)} runs "
+            f"describe ({planned}): a run was edited, dropped or added; run the manifest again into a fresh folder"
+        )
     return ResultSet(manifest=manifest, config_hash=config_hash, records=tuple(records))
