@@ -26,15 +26,17 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.manifest.policy import GatePolicy
     from harness.store.results import read_results
 
-    base_policy = GatePolicy()
+    base_policy, manifest_task = GatePolicy(), None
     if args.manifest:
         from harness.manifest.loader import load_manifest
 
-        base_policy = load_manifest(args.manifest).check
+        manifest = load_manifest(args.manifest)
+        base_policy, manifest_task = manifest.check, manifest.task
     policy = policy_from_args(base_policy, args)
     stored = [read_results(folder) for folder in (args.a, args.b)]
     try:
-        verdict = compare_results(*stored, policy, labels=(f"results {Path(args.a)}", f"results {Path(args.b)}"))
+        verdict = compare_results(*stored, policy, labels=(f"results {Path(args.a)}", f"results {Path(args.b)}"),
+                                  manifest_task=manifest_task)
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

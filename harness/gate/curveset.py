@@ -20,7 +20,7 @@ from harness.store.results import ResultSet
 from harness.core.errors import ResultsError, RunFailedError
 from harness.core.spec import EvaluationPlan, TaskSpec, plan_config
 
-__all__ = ["CurveSet", "last_line", "random_policy_return", "task_threshold"]
+__all__ = ["CurveSet", "last_line", "random_policy_return", "task_from_data", "task_threshold"]
 
 
 def last_line(text: str | None) -> str:
@@ -128,6 +128,42 @@ class CurveSet:
     def curve_matrix(self) -> np.ndarray:
         """Mean evaluation return per seed and checkpoint, shape ``(n_seeds, n_checkpoints)``."""
         return np.stack([r.curve.means for r in self.runs])
+
+
+def task_from_data(task: TaskSpec, *, where: str, manifest_task: TaskSpec | None = None,
+                   environment: bool = True) -> TaskSpec:
+    """The task of stored results, made safe to build an environment from.
+
+    Data never runs code: an id of the form ``"module:Env-v0"`` would make gymnasium import
+    ``module``, so an id read from a file must already be in gymnasium's registry (checked by
+    lookup, which imports nothing) or be the given manifest's own id, before anything is created.
+    Options read from data are never passed to an environment: the manifest's task (validated
+    when it was loaded) is used when given; otherwise, when an ``environment`` is to be built
+    from it, the stored task must have no options.
+
+    Raises
+    ------
+    ResultsError
+        Naming the field and the fix.
+    """
+    import gymnasium
+
+    if manifest_task is not None:
+        if task.id != manifest_task.id:
+            raise ResultsError(f"{where}: [task.id] is {task.id!r}, but the manifest's task is {manifest_task.id!r}: "
+                               "pass the manifest these results belong to")
+        return manifest_task
+    if ":" in task.id or task.id not in gymnasium.registry:
+        raise ResultsError(
+            f"{where}: [task.id] {task.id!r} is not a task in gymnasium's registry; ids read from results are "
+            "never imported. Pass --manifest FILE to take the task from the manifest"
+        )
+    if task.kwargs and environment:
+        raise ResultsError(
+            f"{where}: [task.kwargs] {dict(task.kwargs)} are options read from data, which are never passed to an "
+            "environment. Pass --manifest FILE to take the task from the manifest, or --margin to need no environment"
+        )
+    return task
 
 
 def task_threshold(task: TaskSpec) -> float | None:

@@ -35,9 +35,9 @@ import numpy as np
 
 from harness import stats
 from harness.core.errors import BaselineError, ConfigError, ResultsError
-from harness.core.spec import config_changes
+from harness.core.spec import TaskSpec, config_changes
 from harness.gate.compare import Divergence, GateDecision, MetricCheck, compare_sets, divergence_seeds_needed
-from harness.gate.curveset import CurveSet
+from harness.gate.curveset import CurveSet, task_from_data
 from harness.gate.margins import GateScale, task_scale
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.store.baseline import Baseline, read_baseline
@@ -300,8 +300,12 @@ def verify_sets(
     )
 
 
-def compare_results(reference: Any, candidate: Any, policy: GatePolicy, *, labels: tuple[str, str]) -> Verdict:
+def compare_results(reference: Any, candidate: Any, policy: GatePolicy, *, labels: tuple[str, str],
+                    manifest_task: TaskSpec | None = None) -> Verdict:
     """Verify one stored result set against another (``rlharness compare``), sized on the candidate's task.
+
+    The task is read from data, so it is checked first (:func:`~harness.gate.curveset.task_from_data`):
+    a registered gymnasium id or ``manifest_task``'s, and no options from the file reach an environment.
 
     Raises
     ------
@@ -313,7 +317,9 @@ def compare_results(reference: Any, candidate: Any, policy: GatePolicy, *, label
     sides = [CurveSet.from_results(results, label=label, expected=len(results.records))
              for results, label in zip((reference, candidate), labels, strict=True)]
     spec = candidate.records[0].spec
-    scale = task_scale(policy, task=spec.task, evaluation=spec.evaluation, budget=sides[1].budget)
+    needs_floor = policy.floor is None and any(policy.needs_span(m) for m in policy.metrics)
+    task = task_from_data(spec.task, where=labels[1], manifest_task=manifest_task, environment=needs_floor)
+    scale = task_scale(policy, task=task, evaluation=spec.evaluation, budget=sides[1].budget)
     return verify_sets(sides[0], sides[1], policy, scale=scale)
 
 
