@@ -11,6 +11,7 @@ on older versions of rl-harness too (for before/after figures).
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import shutil
 from collections.abc import Callable
@@ -19,7 +20,61 @@ from typing import Any
 
 from harness.core.spec import sha256_of
 
-__all__ = ["copy_results", "evil_module", "resign_baseline", "resign_results"]
+__all__ = ["TOY", "cli", "copy_results", "evil_module", "record", "resign_baseline", "resign_results"]
+
+#: A toy manifest (``runner_toys:toy``, 3 seeds, a few seconds) with a published reference, so
+#: that ``verify`` also runs without a recorded baseline.
+TOY = """name = "fuzz"
+description = "a manifest to damage"
+[task]
+id = "CartPole-v1"
+options = {}
+[trainer]
+use = "runner_toys:toy"
+[trainer.settings]
+pause = 0.0
+[budget]
+env_steps = 100
+[evaluation]
+every = 25
+episodes = 3
+episode_seed = 1
+epsilon = 0.0
+[seeds]
+count = 3
+root = 7
+[check]
+metrics = ["final", "auc"]
+alpha = 0.05
+[[reference]]
+metric = "final"
+mean = 1.0
+sd = 1.0
+seeds = 10
+source = "invented for the fault tests"
+"""
+
+
+def cli(*argv: Any) -> tuple[int, str]:
+    """``rlharness ARGV`` in-process: the exit code and the output on one line (rich wraps long lines)."""
+    from rich.console import Console
+
+    from harness.cli import main
+
+    out = io.StringIO()
+    code = main([str(a) for a in argv], console=Console(file=out, width=400, color_system=None))
+    return code, " ".join(out.getvalue().split())
+
+
+def record(folder: Path, manifest: str = TOY) -> Path:
+    """Write ``manifest`` to ``folder/m.toml`` and record its results (``res/``) and baseline (``bl/``)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "m.toml").write_text(manifest)
+    code, text = cli("record", folder / "m.toml", "--results", folder / "res", "--baselines", folder / "bl",
+                     "--no-cache", "--workers", "1")
+    if code != 0:
+        raise RuntimeError(f"recording {folder / 'm.toml'} failed ({code}): {text}")
+    return folder
 
 
 def copy_results(source: Path, target: Path) -> Path:

@@ -12,46 +12,20 @@ from __future__ import annotations
 
 import copy
 import json
-from io import StringIO
 from pathlib import Path
 
 import pytest
-from rich.console import Console
 
-from harness.cli import ExitCode, main
+from crafting import cli as _cli
+from crafting import copy_results, record, resign_results
+
+from harness.cli import ExitCode
 from harness.core.spec import sha256_of
-
-MANIFEST = """
-name = "toy"
-[task]
-id = "CartPole-v1"
-[trainer]
-use = "runner_toys:toy"
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-[seeds]
-count = 3
-root = 7
-"""
-
-
-def _cli(*argv: str) -> tuple[int, str]:
-    out = StringIO()
-    code = main([str(a) for a in argv], console=Console(file=out, width=400, color_system=None))
-    return code, " ".join(out.getvalue().split())
-
 
 @pytest.fixture(scope="module")
 def recorded(tmp_path_factory):
-    """A manifest, its results folder and its baseline (toy trainer, 3 seeds)."""
-    root = tmp_path_factory.mktemp("recorded")
-    (root / "m.toml").write_text(MANIFEST)
-    code, text = _cli("record", root / "m.toml", "--results", root / "res", "--baselines", root / "bl", "--no-cache")
-    assert code == ExitCode.OK, text
-    return root
+    """The toy manifest, its results folder and its baseline (3 seeds)."""
+    return record(tmp_path_factory.mktemp("recorded"))
 
 
 def _resign(data: dict) -> dict:
@@ -60,11 +34,11 @@ def _resign(data: dict) -> dict:
 
 
 def _baseline(recorded: Path) -> dict:
-    return json.loads((recorded / "bl" / "toy.json").read_text())
+    return json.loads((recorded / "bl" / "fuzz.json").read_text())
 
 
 def _verify_with(recorded: Path, tmp_path: Path, text: str) -> tuple[int, str]:
-    path = tmp_path / "toy.json"
+    path = tmp_path / "fuzz.json"
     path.write_text(text)
     return _cli("verify", recorded / "m.toml", "--no-run", "--results", recorded / "res", "--baseline", path)
 
@@ -104,17 +78,14 @@ def test_a_crafted_baseline_with_a_valid_checksum_is_refused_naming_the_field(re
      ("deep nesting", "[" * 100_000 + "]" * 100_000, "nested more than")],
 )
 def test_non_standard_numbers_and_deep_nesting_are_refused_before_anything_else(recorded, tmp_path, case, literal, reason):
-    text = (recorded / "bl" / "toy.json").read_text()
+    text = (recorded / "bl" / "fuzz.json").read_text()
     crafted = text.replace('"steps": [0, 25', f'"steps": [{literal}, 25', 1)
     assert crafted != text
     code, out = _verify_with(recorded, tmp_path, crafted)
     assert code == ExitCode.BAD_INPUT, out
     assert reason in out and "Traceback" not in out
     # The same in a results file: compare refuses it naming the file.
-    folder = tmp_path / "res"
-    folder.mkdir()
-    for f in (recorded / "res").glob("*.json"):
-        (folder / f.name).write_text(f.read_text())
+    folder = copy_results(recorded / "res", tmp_path / "res")
     seed = folder / "seed-7-0.json"
     seed.write_text(seed.read_text().replace('"step": 25', f'"step": {literal}', 1))
     code, out = _cli("compare", recorded / "res", folder)
@@ -122,46 +93,31 @@ def test_non_standard_numbers_and_deep_nesting_are_refused_before_anything_else(
     assert "seed-7-0.json" in out and "Traceback" not in out
 
 
-def _resign_results(folder: Path) -> None:
-    """Recompute the index's SHA-256 of every seed file, as anyone editing the folder can."""
-    import hashlib
-
-    index = json.loads((folder / "index.json").read_text())
-    for run in index["runs"]:
-        run["sha256"] = hashlib.sha256((folder / run["file"]).read_bytes()).hexdigest()
-    (folder / "index.json").write_text(json.dumps(index))
-
-
 RESULT_EDITS = {
     "duplicated seed": ("seed-7-1.json", lambda d: d["spec"].__setitem__("seed", {"entropy": 7, "spawn_key": [0]}),
-                        "[spec.seed] 7/0 is also the seed"),
+                        "[runs[1].seed] is '7/1', but"),
     "boolean return": ("seed-7-0.json", lambda d: d["curve"][1]["returns"].__setitem__(0, False), "[curve[1].returns] must be a number"),
     "non-integer step": ("seed-7-0.json", lambda d: d["curve"][1].__setitem__("step", 25.0), "[curve[1].step] must be an integer"),
     "negative seed": ("seed-7-0.json", lambda d: d["spec"]["seed"].__setitem__("entropy", -1), "[seed.entropy] must be at least 0"),
-    "config edited": ("seed-7-0.json", lambda d: d["spec"]["config"].__setitem__("pause", 1), "[config_hash]"),
+    "config edited": ("seed-7-0.json", lambda d: d["spec"]["config"].__setitem__("pause", 1), "[spec] differs"),
+    "index seed relabelled": ("index.json", lambda d: d["runs"][1].__setitem__("seed", "7/9"), "[runs[1].seed]"),
 }
 
 
 @pytest.mark.parametrize("case", sorted(RESULT_EDITS))
 def test_a_crafted_results_folder_with_valid_hashes_is_refused_naming_the_field(recorded, tmp_path, case):
     name, edit, field = RESULT_EDITS[case]
-    folder = tmp_path / "res"
-    folder.mkdir()
-    for f in (recorded / "res").glob("*.json"):
-        (folder / f.name).write_text(f.read_text())
+    folder = copy_results(recorded / "res", tmp_path / "res")
     data = json.loads((folder / name).read_text())
     (folder / name).write_text(json.dumps(_edit(data, edit)))
-    _resign_results(folder)
+    resign_results(folder, rehash_config=False)
     code, text = _cli("compare", recorded / "res", folder)
     assert code == ExitCode.BAD_INPUT, text
     assert field in text and "Traceback" not in text
 
 
 def test_a_results_folder_that_drops_a_run_says_so(recorded, tmp_path):
-    folder = tmp_path / "res"
-    folder.mkdir()
-    for f in (recorded / "res").glob("*.json"):
-        (folder / f.name).write_text(f.read_text())
+    folder = copy_results(recorded / "res", tmp_path / "res")
     index = json.loads((folder / "index.json").read_text())
     index["runs"].pop()
     (folder / "index.json").write_text(json.dumps(index))
@@ -171,17 +127,16 @@ def test_a_results_folder_that_drops_a_run_says_so(recorded, tmp_path):
 
 
 def test_verify_no_run_refuses_stored_runs_that_differ_from_the_manifests_despite_the_hash(recorded, tmp_path):
-    folder = tmp_path / "res"
-    folder.mkdir()
-    for f in (recorded / "res").glob("*.json"):
-        (folder / f.name).write_text(f.read_text())
-    data = json.loads((folder / "seed-7-2.json").read_text())
-    data["spec"]["budget"] = 99  # the recorded config_hash is left as it was
-    (folder / "seed-7-2.json").write_text(json.dumps(data))
-    _resign_results(folder)
+    folder = copy_results(recorded / "res", tmp_path / "res")
+
+    def budget(records, index):
+        for r in records:
+            r["spec"]["budget"] = 99  # every run alike; the recorded config_hash is left as it was
+
+    resign_results(folder, budget, rehash_config=False)
     code, text = _cli("verify", recorded / "m.toml", "--no-run", "--results", folder, "--baselines", recorded / "bl")
     assert code == ExitCode.BAD_INPUT, text
-    assert "seed 7/2 is not the manifest's run #2" in text
+    assert "[config_hash]" in text and "is not the hash of the configuration its 3 runs describe" in text
 
 
 def test_the_hash_readers_recompute_is_the_manifests_config_hash():
@@ -191,3 +146,16 @@ def test_the_hash_readers_recompute_is_the_manifests_config_hash():
     for path in sorted((Path(__file__).parent.parent / "manifests").glob("*.toml")):
         manifest = load_manifest(path)
         assert sha256_of(plan_config(manifest.runs())) == manifest.config_hash == sha256_of(manifest.resolved_config())
+
+
+def test_a_duplicated_seed_is_refused_even_with_the_index_relabelled(recorded, tmp_path):
+    folder = copy_results(recorded / "res", tmp_path / "res")
+
+    def duplicate(records, index):
+        records[1]["spec"]["seed"] = records[0]["spec"]["seed"]
+        index["runs"][1]["seed"] = index["runs"][0]["seed"]
+
+    resign_results(folder, duplicate)  # config hash recomputed too: it now plans seed 7/0 twice
+    code, text = _cli("compare", recorded / "res", folder)
+    assert code == ExitCode.BAD_INPUT, text
+    assert "[spec.seed] 7/0 is also the seed of an earlier run" in text

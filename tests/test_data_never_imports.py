@@ -10,45 +10,17 @@ from __future__ import annotations
 
 import json
 import sys
-from io import StringIO
 from pathlib import Path
 
 import pytest
-from crafting import copy_results, evil_module, resign_baseline, resign_results
-from rich.console import Console
+from crafting import TOY, copy_results, evil_module, record, resign_baseline, resign_results
+from crafting import cli as _cli
 
-from harness.cli import ExitCode, main
-
-MANIFEST = """
-name = "toy"
-[task]
-id = "CartPole-v1"
-[trainer]
-use = "runner_toys:toy"
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-[seeds]
-count = 3
-root = 7
-"""
-
-
-def _cli(*argv) -> tuple[int, str]:
-    out = StringIO()
-    code = main([str(a) for a in argv], console=Console(file=out, width=400, color_system=None))
-    return code, " ".join(out.getvalue().split())
-
+from harness.cli import ExitCode
 
 @pytest.fixture(scope="module")
 def recorded(tmp_path_factory):
-    root = tmp_path_factory.mktemp("recorded")
-    (root / "m.toml").write_text(MANIFEST)
-    code, text = _cli("record", root / "m.toml", "--results", root / "res", "--baselines", root / "bl", "--no-cache")
-    assert code == ExitCode.OK, text
-    return root
+    return record(tmp_path_factory.mktemp("recorded"))
 
 
 @pytest.fixture
@@ -72,7 +44,7 @@ def test_compare_never_imports_a_task_module_named_in_results(recorded, tmp_path
     resign_results(folder, lambda records, index: _set_task(records, index, task_id))
     # A manifest whose [check] sets the threshold: before the fix the random-policy floor was then
     # measured on gymnasium.make(<id from the file>), which imports the module.
-    (tmp_path / "threshold.toml").write_text(MANIFEST + "[check]\nthreshold = 400.0\n")
+    (tmp_path / "threshold.toml").write_text(TOY.replace("[check]\n", "[check]\nthreshold = 400.0\n"))
     for extra in ((), ("--margin", "1.0"), ("--manifest", recorded / "m.toml"), ("--manifest", tmp_path / "threshold.toml")):
         code, text = _cli("compare", recorded / "res", folder, *extra)
         assert code == ExitCode.BAD_INPUT, text
@@ -97,11 +69,11 @@ def test_compare_never_passes_options_read_from_results_to_an_environment(record
 
 def test_verify_never_imports_a_task_module_named_in_a_baseline_or_results(recorded, tmp_path, evil):
     task_id, marker = evil
-    data = json.loads((recorded / "bl" / "toy.json").read_text())
+    data = json.loads((recorded / "bl" / "fuzz.json").read_text())
     data["config"]["task"]["id"] = task_id
-    (tmp_path / "toy.json").write_text(resign_baseline(data))
+    (tmp_path / "fuzz.json").write_text(resign_baseline(data))
     code, text = _cli("verify", recorded / "m.toml", "--no-run", "--results", recorded / "res",
-                      "--baseline", tmp_path / "toy.json")
+                      "--baseline", tmp_path / "fuzz.json")
     assert code in (ExitCode.OK, ExitCode.GATE_FAILED, ExitCode.BAD_INPUT) and "Traceback" not in text
     folder = copy_results(recorded / "res", tmp_path / "crafted")
     resign_results(folder, lambda records, index: _set_task(records, index, task_id), rehash_config=False)

@@ -9,40 +9,19 @@ from __future__ import annotations
 
 import os
 import textwrap
-from io import StringIO
 
 import pytest
-from rich.console import Console
+from crafting import TOY
+from crafting import cli as _cli
 
-from harness.cli import ExitCode, main
+from harness.cli import ExitCode
 from harness.core.errors import ManifestError
 from harness.core.seeding import MAX_SEEDS, plan_seeds
-
-MANIFEST = """
-name = "toy"
-[task]
-id = "CartPole-v1"
-[trainer]
-use = "{use}"
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-[seeds]
-{seeds}
-"""
-
-
-def _cli(*argv: str) -> tuple[int, str]:
-    out = StringIO()
-    code = main(list(argv), console=Console(file=out, width=400, color_system=None))
-    return code, " ".join(out.getvalue().split())
 
 
 def _manifest(tmp_path, use="runner_toys:toy", seeds="count = 3\nroot = 7"):
     path = tmp_path / "m.toml"
-    path.write_text(MANIFEST.format(use=use, seeds=seeds))
+    path.write_text(TOY.replace('use = "runner_toys:toy"', f'use = "{use}"').replace("count = 3\nroot = 7", seeds))
     return path
 
 

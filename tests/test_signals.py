@@ -20,11 +20,9 @@ import time
 from pathlib import Path
 
 import pytest
-from io import StringIO
-from rich.console import Console
+from crafting import TOY, cli
 from runner_toys import folder_bytes, toy_specs
 
-from harness.cli import main
 from harness.core.atomic import sweep_stale_temporaries
 from harness.execute import Task, WorkerResult
 from harness.execute.local import LocalExecutor
@@ -33,38 +31,13 @@ from harness.execute.runner import run_specs
 TESTS = Path(__file__).parent
 ROOT = TESTS.parent
 
-MANIFEST = """
-name = "toy"
-[task]
-id = "CartPole-v1"
-[trainer]
-use = "{use}"
-[trainer.settings]
-{settings}
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-[seeds]
-count = 4
-root = 7
-[[reference]]
-metric = "final"
-mean = 1.0
-sd = 1.0
-seeds = 10
-source = "invented for this test: lets verify run without a recorded baseline"
-"""
-
-
 def _env() -> dict[str, str]:
     return {**os.environ, "PYTHONPATH": os.pathsep.join([str(TESTS), str(ROOT), os.environ.get("PYTHONPATH", "")])}
 
 
 def _start(tmp_path: Path, command: str, settings: str = "pause = 0.3", *extra: str) -> subprocess.Popen:
     manifest = tmp_path / "m.toml"
-    manifest.write_text(MANIFEST.format(use="runner_toys:toy", settings=settings))
+    manifest.write_text(TOY.replace("pause = 0.0", settings).replace("count = 3", "count = 4"))
     argv = [sys.executable, "-m", "harness", command, str(manifest), "--results", str(tmp_path / "res"),
             "--no-cache", "--workers", "1", *extra]
     return subprocess.Popen(argv, cwd=tmp_path, env=_env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE,
@@ -165,9 +138,8 @@ def test_after_sigkill_of_the_runner_a_rerun_equals_a_clean_run(tmp_path):
     rerun = _start(tmp_path, "run", "pause = 0.2")
     out, err = rerun.communicate(timeout=120)
     assert rerun.returncode == 0, (out, err)
-    code = main(["run", str(tmp_path / "m.toml"), "--results", str(tmp_path / "clean"), "--no-cache", "--workers", "1"],
-                console=Console(file=StringIO()))
-    assert code == 0
+    code, text = cli("run", tmp_path / "m.toml", "--results", tmp_path / "clean", "--no-cache", "--workers", "1")
+    assert code == 0, text
     assert folder_bytes(tmp_path / "res") == folder_bytes(tmp_path / "clean")
 
     def comparable(folder: Path) -> dict:

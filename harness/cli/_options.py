@@ -34,13 +34,17 @@ def positive_float(text: str) -> float:
 
 
 def add_execution_arguments(group: Any) -> None:
-    """``--workers``, ``--executor``, ``--scheduler``, ``--cache-dir``, ``--no-cache`` and ``--time-limit``."""
+    """``--workers``, ``--executor``, ``--scheduler`` (with ``--tls-*``), ``--cache-dir``, ``--no-cache``, ``--time-limit``."""
     group.add_argument("--workers", type=positive_int, metavar="N",
                        help="worker processes, or local dask workers (default: one per core)")
     group.add_argument("--executor", choices=EXECUTORS, default="local",
                        help="local worker processes (default) or a dask distributed cluster")
     group.add_argument("--scheduler", metavar="ADDRESS",
                        help="dask scheduler address, e.g. tcp://scheduler-host:8786 (default: start a local cluster)")
+    group.add_argument("--tls-ca-file", metavar="FILE",
+                       help="with --scheduler tls://...: the CA certificate (PEM) that signed the scheduler's")
+    group.add_argument("--tls-cert", metavar="FILE", help="with --scheduler tls://...: this client's certificate (PEM)")
+    group.add_argument("--tls-key", metavar="FILE", help="with --scheduler tls://...: this client's private key (PEM)")
     group.add_argument("--cache-dir", metavar="DIR",
                        help="run cache folder (default: $RLHARNESS_CACHE_DIR or .rlharness-cache)")
     group.add_argument("--no-cache", action="store_true", help="neither read nor write the run cache")
@@ -60,10 +64,21 @@ def execution_options(args: argparse.Namespace) -> dict[str, Any]:
 
     if args.scheduler is not None and args.executor != "dask":
         raise HarnessError("--scheduler needs --executor dask")
+    scheduler = args.scheduler
+    tls = (args.tls_ca_file, args.tls_cert, args.tls_key)
+    if any(tls):
+        from harness.execute.dask_cluster import TlsScheduler
+
+        if not all(tls) or scheduler is None:
+            raise HarnessError("TLS needs all of --tls-ca-file, --tls-cert and --tls-key, and --scheduler tls://HOST:PORT")
+        try:
+            scheduler = TlsScheduler(scheduler, *tls)
+        except ValueError as exc:
+            raise HarnessError(f"--scheduler with TLS: {exc}") from None
     return {
         "workers": args.workers,
         "executor": args.executor,
-        "scheduler": args.scheduler,
+        "scheduler": scheduler,
         "cache": RunCache(args.cache_dir),
         "use_cache": not args.no_cache,
         "time_limit": args.time_limit,

@@ -13,6 +13,7 @@ from collections.abc import Iterable
 
 __all__ = [
     "BaselineError",
+    "CacheError",
     "ConfigError",
     "HarnessError",
     "ManifestError",
@@ -62,6 +63,10 @@ class BaselineError(HarnessError, ValueError):
 
 class ResultsError(HarnessError, ValueError):
     """A stored result file is missing, truncated, of an unknown schema or inconsistent."""
+
+
+class CacheError(HarnessError, ValueError):
+    """The run cache folder cannot be trusted or used (a symlink out of it, a file in its place)."""
 
 
 class RunFailedError(HarnessError, RuntimeError):

@@ -17,18 +17,27 @@ Differences from the local executor, stated plainly:
   stop Python code running in a worker thread: the thread stays busy until the
   trainer returns (restart the cluster's workers to reclaim it);
 * checkpoint-by-checkpoint progress is not streamed back; runs report when they finish.
+
+**Trust.** dask moves Python objects between the harness, the scheduler and the workers with
+pickle, and a pickle runs code when it is loaded. The tasks rl-harness sends are JSON text and
+the replies plain data, but the channel itself is pickle: the scheduler and every worker must be
+machines and people you trust, exactly as you trust the machine that runs ``rlharness``. Reach a
+remote scheduler over TLS with client certificates (:class:`TlsScheduler`, ``--tls-ca-file``,
+``--tls-cert``, ``--tls-key``), so that nobody else can connect, listen or pose as it.
 """
 
 from __future__ import annotations
 
 import asyncio
+import dataclasses
 import time
 from collections.abc import Sequence
+from pathlib import Path
 
 from harness.execute.base import RunEvent, Task, WorkerResult
 from harness.execute.work import run_task
 
-__all__ = ["DaskExecutor", "MISSING_DASK"]
+__all__ = ["DaskExecutor", "MISSING_DASK", "TlsScheduler"]
 
 MISSING_DASK = (
     "the dask executor needs dask.distributed, which is not installed; "
@@ -44,14 +53,48 @@ def _import_distributed():
     return distributed
 
 
+@dataclasses.dataclass(frozen=True, slots=True)
+class TlsScheduler:
+    """A remote dask scheduler reached over TLS with a client certificate.
+
+    Attributes
+    ----------
+    address
+        ``"tls://host:port"``.
+    ca_file, cert_file, key_file
+        PEM files: the certificate authority that signed the scheduler's certificate, and
+        this client's certificate and private key (dask's ``tls_ca_file``, ``tls_client_cert``,
+        ``tls_client_key``).
+    """
+
+    address: str
+    ca_file: str
+    cert_file: str
+    key_file: str
+
+    def __post_init__(self) -> None:
+        if not self.address.startswith("tls://"):
+            raise ValueError(f"a TLS scheduler address starts with tls://, got {self.address!r}")
+        for name in ("ca_file", "cert_file", "key_file"):
+            if not Path(getattr(self, name)).is_file():
+                raise ValueError(f"`{name}` {getattr(self, name)!r} is not a file")
+
+    def security(self):
+        """The ``distributed.security.Security`` that requires encryption with these files."""
+        from distributed.security import Security
+
+        return Security(tls_ca_file=self.ca_file, tls_client_cert=self.cert_file, tls_client_key=self.key_file,
+                        require_encryption=True)
+
+
 class DaskExecutor:
     """Run tasks on a dask distributed cluster.
 
     Parameters
     ----------
     scheduler
-        Address of a running scheduler (``"tcp://host:8786"``), or a ``distributed.Client``;
-        ``None`` starts a local cluster on loopback.
+        Address of a running scheduler (``"tcp://host:8786"``), a :class:`TlsScheduler`, or a
+        ``distributed.Client``; ``None`` starts a local cluster on loopback.
     workers
         Worker processes of the local cluster (ignored with a scheduler); ``None`` means 2.
     """
@@ -73,8 +116,10 @@ class DaskExecutor:
             self._client = distributed.Client(self._cluster)
         elif isinstance(scheduler, str):
             self._client = distributed.Client(scheduler)
+        elif isinstance(scheduler, TlsScheduler):
+            self._client = distributed.Client(scheduler.address, security=scheduler.security())
         else:
-            raise TypeError(f"`scheduler` must be an address string or a distributed.Client, got {scheduler!r}")
+            raise TypeError(f"`scheduler` must be an address string, a TlsScheduler or a distributed.Client, got {scheduler!r}")
         self._futures: dict = {}
 
     def _threads(self) -> int:

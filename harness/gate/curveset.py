@@ -20,7 +20,7 @@ from harness.store.results import ResultSet
 from harness.core.errors import ResultsError, RunFailedError
 from harness.core.spec import EvaluationPlan, TaskSpec, plan_config
 
-__all__ = ["CurveSet", "last_line", "random_policy_return", "task_from_data", "task_threshold"]
+__all__ = ["CurveSet", "last_line", "random_policy_return", "task_from_data", "task_threshold", "version_mix"]
 
 
 def last_line(text: str | None) -> str:
@@ -40,7 +40,8 @@ class CurveSet:
     manifest, config_hash, config
         The manifest's name, config hash and resolved configuration.
     versions
-        Installed versions the curves were produced with.
+        Installed versions the curves were produced with; a component whose version differs
+        between seeds reads ``"mixed: <version> (<n> seeds), ..."`` (never one seed's version).
     runs
         Per-seed curves.
     budget
@@ -54,6 +55,8 @@ class CurveSet:
     versions: Mapping[str, str]
     runs: tuple[SeedCurve, ...]
     budget: int
+    mixed_versions: Mapping[str, Mapping[str, tuple[str, ...]]] = dataclasses.field(default_factory=dict)
+    """Components whose version differs between seeds: ``{component: {version: seed labels}}``."""
 
     @classmethod
     def from_baseline(cls, baseline: Baseline) -> CurveSet:
@@ -106,7 +109,10 @@ class CurveSet:
                 "seeds first (`rlharness run`); verification never uses fewer seeds than asked"
             )
         first = done[0].spec
+        mixed = version_mix(done)
         versions = {k: v for r in done for k, v in r.versions.items()}
+        for name, seeds in mixed.items():
+            versions[name] = "mixed: " + ", ".join(f"{v} ({len(s)} seed{'s' if len(s) != 1 else ''})" for v, s in seeds.items())
         return cls(
             label=label,
             manifest=results.manifest,
@@ -115,6 +121,7 @@ class CurveSet:
             versions=versions,
             runs=tuple(SeedCurve(r.spec.seed, r.curve) for r in done),
             budget=first.budget,
+            mixed_versions=mixed,
         )
 
     @property
@@ -128,6 +135,20 @@ class CurveSet:
     def curve_matrix(self) -> np.ndarray:
         """Mean evaluation return per seed and checkpoint, shape ``(n_seeds, n_checkpoints)``."""
         return np.stack([r.curve.means for r in self.runs])
+
+
+def version_mix(records: Sequence[Any]) -> dict[str, dict[str, tuple[str, ...]]]:
+    """The components whose installed version differs between runs (or is missing in some):
+    ``{component: {version: seed labels}}``, with ``"-"`` for a missing one; empty when all agree."""
+    names = sorted({k for r in records for k in r.versions})
+    mix: dict[str, dict[str, tuple[str, ...]]] = {}
+    for name in names:
+        seeds: dict[str, list[str]] = {}
+        for r in records:
+            seeds.setdefault(r.versions.get(name, "-"), []).append(r.spec.seed.label)
+        if len(seeds) > 1:
+            mix[name] = {v: tuple(s) for v, s in seeds.items()}
+    return mix
 
 
 def task_from_data(task: TaskSpec, *, where: str, manifest_task: TaskSpec | None = None,

@@ -42,7 +42,7 @@ from harness.gate.margins import GateScale, task_scale
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.store.baseline import Baseline, read_baseline
 from harness.store.history import BaselineHistory
-from harness.store.results import TRAINER_SOURCE, same_spec
+from harness.store.results import TRAINER_SOURCE
 
 __all__ = [
     "WHAT_A_PASS_MEANS",
@@ -103,6 +103,8 @@ class Provenance:
     changes: tuple[ConfigChange, ...]
     drift: tuple[VersionChange, ...]
     source_changed: bool = False
+    mixed: tuple[str, ...] = ()
+    """One line per side and component whose seeds ran under different versions."""
 
     @property
     def same_config(self) -> bool:
@@ -123,7 +125,8 @@ class Provenance:
                     "version drift in " + ", ".join(d.name for d in self.drift))
         source = ("; the trainer's source code changed since the baseline (the exact check tells whether "
                   "its numbers did)" if self.source_changed else "")
-        return f"{config}; {versions}{source}."
+        mixed = "".join(f"; {line}" for line in self.mixed)
+        return f"{config}; {versions}{source}{mixed}."
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -222,8 +225,14 @@ class Verdict:
 
 def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
     """Compare configurations (key by key) and installed versions of the two sides."""
+    mixed = tuple(
+        f"{side} seeds ran under different versions of {name}: "
+        + "; ".join(f"{version} (seed{'s' if len(seeds) != 1 else ''} {', '.join(seeds)})" for version, seeds in mix.items())
+        for side, curves in (("baseline", baseline), ("candidate", candidate)) if curves is not None
+        for name, mix in curves.mixed_versions.items()
+    )
     if baseline is None:
-        return Provenance("published references", candidate.label, None, candidate.config_hash, (), ())
+        return Provenance("published references", candidate.label, None, candidate.config_hash, (), (), mixed=mixed)
     changes = tuple(ConfigChange(*change) for change in config_changes(baseline.config, candidate.config))
     # The trainer's source fingerprint is not an installed version: a refactor changes it, and
     # a refactor is exactly where the exact check must run.
@@ -232,7 +241,7 @@ def provenance(baseline: CurveSet | None, candidate: CurveSet) -> Provenance:
                   if k != TRAINER_SOURCE and baseline.versions.get(k) != candidate.versions.get(k))
     source_changed = baseline.versions.get(TRAINER_SOURCE) != candidate.versions.get(TRAINER_SOURCE)
     return Provenance(baseline.label, candidate.label, baseline.config_hash, candidate.config_hash, changes, drift,
-                      source_changed)
+                      source_changed, mixed)
 
 
 def exact_check(baseline: CurveSet | None, candidate: CurveSet, prov: Provenance, policy: GatePolicy) -> ExactCheck:
@@ -438,13 +447,6 @@ def verify_manifest(
             raise BaselineError(f"{baseline.path}: [manifest] is {baseline.manifest!r}, not {manifest.name!r}: "
                                 f"pass the baseline of {manifest.name!r}")
         check_grid(manifest, baseline)
-    for planned, record in zip(manifest.runs(), results.records):
-        if not same_spec(planned, record.spec):  # the config hash is only a claim in the files: check the runs
-            raise ResultsError(
-                f"the stored run of seed {record.spec.seed.label} is not the manifest's run #{planned.index} "
-                f"(seed {planned.seed.label}) although [config_hash] matches: the results were edited; run the "
-                "manifest again (`rlharness verify` without --no-run)"
-            )
     candidate = CurveSet.from_results(results, label=candidate_label or f"rerun of {manifest.name}",
                                       config=manifest.resolved_config(), expected=len(manifest.seeds))
     references = tuple(manifest.references)

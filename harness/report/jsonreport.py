@@ -23,6 +23,12 @@ def _check(c: Any) -> dict:
     return data
 
 
+def _mix(curves: Any) -> dict:
+    """``{component: {version: [seed labels]}}`` of a side whose seeds ran under different versions."""
+    mixed = getattr(curves, "mixed_versions", None) or {}
+    return {name: {version: list(seeds) for version, seeds in mix.items()} for name, mix in mixed.items()}
+
+
 def verdict_json(verdict: Verdict) -> dict:
     """The verdict as a JSON-compatible dict (``schema`` = :data:`VERDICT_SCHEMA`).
 
@@ -57,6 +63,7 @@ def verdict_json(verdict: Verdict) -> dict:
             "changes": [dataclasses.asdict(c) for c in prov.changes],
             "drift": [dataclasses.asdict(d) for d in prov.drift],
             "trainer_source_changed": prov.source_changed,
+            "mixed_versions": {"baseline": _mix(v.baseline_set), "candidate": _mix(v.candidate_set)},
             "reading": prov.reading,
         },
         "exact": {**exact, "nondeterministic": v.exact.nondeterministic, "reading": v.exact.reading},

@@ -50,6 +50,7 @@ __all__ = [
     "record_file_name",
     "record_from_json",
     "record_text",
+    "same_plan",
     "same_spec",
     "write_index",
     "write_record",
@@ -138,6 +139,13 @@ class ResultSet:
 def same_spec(a: RunSpec, b: RunSpec) -> bool:
     """Whether two specs describe the same run, as their JSON says (a tuple and a list compare equal)."""
     return canonical_json(a.to_json()) == canonical_json(b.to_json())
+
+
+def same_plan(a: RunSpec, b: RunSpec) -> bool:
+    """Whether two runs belong to one plan: equal but for their seed and position."""
+    strip = ("seed", "index")
+    return canonical_json({k: v for k, v in a.to_json().items() if k not in strip}) == canonical_json(
+        {k: v for k, v in b.to_json().items() if k not in strip})
 
 
 def record_file_name(spec: RunSpec) -> str:
@@ -329,12 +337,12 @@ def read_results(folder: str | os.PathLike) -> ResultSet:
         runs = index["runs"]
         if not isinstance(runs, list) or not runs:
             raise ValueError("[runs] must be a non-empty list")
-        entries = [(as_str(e["file"], f"runs[{n}].file"), as_str(e["sha256"], f"runs[{n}].sha256"))
-                   for n, e in enumerate(runs)]
+        entries = [(as_str(e["file"], f"runs[{n}].file"), as_str(e["sha256"], f"runs[{n}].sha256"),
+                    e.get("seed")) for n, e in enumerate(runs)]
     except (KeyError, TypeError, ValueError) as exc:
         raise ResultsError(f"{where}: malformed index ({type(exc).__name__}: {exc}); run the manifest again") from exc
     records = []
-    for position, (name, digest) in enumerate(entries):
+    for position, (name, digest, label) in enumerate(entries):
         if Path(name).name != name or name in ("", ".", ".."):
             raise ResultsError(f"{where}: run file name {name!r} leaves the results folder; the index is damaged")
         path = folder / name
@@ -350,6 +358,13 @@ def read_results(folder: str | os.PathLike) -> ResultSet:
                 f"{path}: belongs to {record.spec.manifest!r} seed #{record.spec.index} ({record.spec.config_hash}), "
                 f"but {where} lists it as {manifest!r} seed #{position} ({config_hash}); run the manifest again"
             )
+        if label is not None and label != record.spec.seed.label:
+            raise ResultsError(f"{where}: [runs[{position}].seed] is {label!r}, but {path} holds seed "
+                               f"{record.spec.seed.label}; the index was edited, run the manifest again")
+        if records and not same_plan(records[0].spec, record.spec):
+            raise ResultsError(f"{path}: [spec] differs from the first run's in more than its seed and position "
+                               f"(task, trainer, settings, budget or evaluation); runs of one folder share one plan: "
+                               "the folder was edited, run the manifest again")
         if any(r.spec.seed == record.spec.seed for r in records):
             raise ResultsError(f"{path}: [spec.seed] {record.spec.seed.label} is also the seed of an earlier run in "
                                f"{where}: a seed counts once; the folder was edited, run the manifest again")

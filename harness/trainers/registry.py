@@ -29,7 +29,6 @@ from typing import Any
 
 from harness.core import config
 from harness.core.errors import ConfigError, ManifestError, did_you_mean
-from harness.trainers.fingerprint import source_files
 
 __all__ = [
     "BUILTIN_TRAINERS",
@@ -239,6 +238,8 @@ def resolve_trainer(
         raise ManifestError(f"{exc} Name the trainer function after the colon.", path=path, key=key) from None
     if not callable(function):
         raise ManifestError(f"{name!r} is not a function: it must be train(run) -> checkpoints", path=path, key=key)
+    from harness.trainers.fingerprint import source_files  # here: importing the registry imports no trainer code
+
     if not source_files(function):
         raise ManifestError(
             f"{name!r} has no Python source file (a builtin or compiled module), so runs of it cannot be told apart "
