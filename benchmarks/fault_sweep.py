@@ -5,11 +5,13 @@ Prints, all measured in this one run:
 * **signals**: N trials of ``rlharness run`` stopped mid-run by SIGTERM or by Ctrl-C (SIGINT to
   its process group), alternately, at a random moment after the first seed file exists: the exit
   codes, how many printed a traceback, and whether the rerun's seed files equal a clean run's
-  byte for byte; then N trials of SIGKILL of the whole process group mid-run: rerun equal to a
+  byte for byte; N more stopped 0.3-2 s after the command starts (imports, manifest, workers;
+  a signal before Python reaches rl-harness's own code keeps Python's default); then N trials of SIGKILL of the whole process group mid-run: rerun equal to a
   clean run, temporary files left after the rerun; and ``verify --time-limit`` on a trainer that
   hangs (exit code, seconds);
 * **malformed manifests** (default 200, ``tests/fault_generators.manifest_cases``): exit codes,
-  crashes (an exception escaping ``main``, exit 70, or a printed traceback);
+  crashes (an exception escaping ``main``, exit 70, a printed traceback, or a case still running
+  after 10 s: a hang);
 * **damaged or crafted baselines and results** (default 160, ``data_cases``): the same, plus
   the number of cases whose task id names a module that leaves a marker when imported, and how
   many markers appeared (imports from data).
@@ -34,19 +36,20 @@ import time
 from collections import Counter
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-
-import numpy as np  # noqa: E402
-from fault_generators import TOY, data_cases, manifest_cases, record_toy, run_case, sweep  # noqa: E402
-
-import harness  # noqa: E402
+import harness
 
 TESTS = Path(__file__).resolve().parent.parent / "tests"
 HARNESS_ROOT = Path(harness.__file__).resolve().parent.parent
+# The generators come from this tree's tests; the toy trainers (runner_toys) from the measured tree's.
+sys.path[:0] = [str(HARNESS_ROOT / "tests"), str(TESTS)]
+
+import numpy as np  # noqa: E402
+from crafting import TOY  # noqa: E402
+from fault_generators import data_cases, manifest_cases, record_toy, run_case, sweep  # noqa: E402
 
 
 def _env() -> dict[str, str]:
-    return {**os.environ, "PYTHONPATH": os.pathsep.join([str(TESTS), str(HARNESS_ROOT)])}
+    return {**os.environ, "PYTHONPATH": os.pathsep.join([str(HARNESS_ROOT / "tests"), str(TESTS), str(HARNESS_ROOT)])}
 
 
 def _seed_files(folder: Path) -> dict[str, bytes]:
@@ -69,6 +72,7 @@ def _wait_for(path: Path, timeout: float = 120) -> bool:
 
 
 def signal_trials(n: int, folder: Path, rng: np.random.Generator) -> None:
+    folder.mkdir(parents=True, exist_ok=True)
     manifest = folder / "slow.toml"
     manifest.write_text(TOY.replace("pause = 0.0", "pause = 0.15").replace("count = 3", "count = 4"))
     clean = folder / "clean"
@@ -96,6 +100,21 @@ def signal_trials(n: int, folder: Path, rng: np.random.Generator) -> None:
     print(f"  exit codes          {dict(sorted(codes.items()))}")
     print(f"  tracebacks printed  {tracebacks}")
     print(f"  rerun seed files equal to a clean run's: {equal} of {n}")
+    codes, tracebacks = Counter(), 0
+    for trial in range(n):
+        how = ("SIGTERM", "Ctrl-C")[trial % 2]
+        proc = _start(manifest, folder / f"early-{trial}", "run")
+        time.sleep(float(rng.uniform(0.3, 2.0)))  # while the command starts: imports, manifest, workers
+        if how == "SIGTERM":
+            proc.send_signal(signal.SIGTERM)
+        else:
+            os.killpg(proc.pid, signal.SIGINT)
+        out, err = proc.communicate(timeout=120)
+        codes[(how, proc.returncode)] += 1
+        tracebacks += "Traceback" in out + err
+    print(f"signals early: {n} trials 0.3-2 s after the command starts (SIGTERM / Ctrl-C alternately)")
+    print(f"  exit codes          {dict(sorted(codes.items()))}")
+    print(f"  tracebacks printed  {tracebacks}")
     kill_equal, leftovers = 0, 0
     for trial in range(n):
         results = folder / f"kill-{trial}"
@@ -143,7 +162,7 @@ def main() -> None:
         folder = Path(tmp)
         os.environ.setdefault("RLHARNESS_CRASH_DIR", str(folder / "crashes"))
         start = time.monotonic()
-        _report("malformed manifests", sweep(manifest_cases(args.seed, args.manifests, folder / "manifests")))
+        _report("malformed manifests", sweep(manifest_cases(args.seed, args.manifests, folder / "manifests"), limit=10.0))
         recorded = record_toy(folder / "recorded")
         data = sweep(data_cases(args.seed, args.data, recorded, folder / "data"))
         _report("damaged or crafted baselines and results", data)

@@ -16,6 +16,7 @@ import copy
 import dataclasses
 import io
 import json
+import signal
 import sys
 from collections import Counter
 from collections.abc import Callable, Iterator
@@ -64,7 +65,16 @@ TOML_VALUES = (
     "[[[[[]]]]]", "{}", "1979-05-27", "07:32:00", '"CartPole-v1"', '"no_such_module:Evil-v0"', '"os:system"',
     '"builtins:eval"', '"sys:exit"', "3.5", '""', '"' + "a" * 300 + '"', '[1, "a"]', "{ a = 1 }",
     "10000000000", "1000000000", "-0.0", '"../../etc/passwd"', '"dqn"', "[1, 1, 1]", "0.5",
+    '"broken_syntax:train"', '"raises_on_import:train"', '"exits_on_import:train"', '"opens_missing_file:train"',
 )
+
+#: Trainer modules written beside the manifests: each fails (or exits) while being imported.
+BROKEN_MODULES = {
+    "broken_syntax": "def train(run:\n",
+    "raises_on_import": "raise RuntimeError('broken on purpose')\n",
+    "exits_on_import": "import sys\nsys.exit(0)\n",
+    "opens_missing_file": "open('no-such-file-next-to-the-module.txt')\n",
+}
 
 #: Replacement values for JSON data: wrong types, limits, code-naming strings.
 JSON_VALUES = (
@@ -90,28 +100,67 @@ class Sweep:
             self.crashes.append(label)
 
 
-def run_case(argv: list[str]) -> tuple[int | str, str, bool]:
-    """Run ``rlharness ARGV`` in-process; return (exit code or exception name, output, crashed)."""
+class _Hung(BaseException):
+    """Raised by SIGALRM in a case that runs too long (not an Exception: ``main`` must not catch it)."""
+
+
+def _alarm(signum: int, frame: object) -> None:
+    raise _Hung()
+
+
+def run_case(argv: list[str], *, limit: float = 30.0) -> tuple[int | str, str, bool]:
+    """Run ``rlharness ARGV`` in-process; return (exit code or exception name, output, crashed).
+
+    A case still running after ``limit`` seconds is stopped and counted as ``"hang"`` (a crash).
+    """
     from rich.console import Console
 
     from harness.cli import main
 
     out = io.StringIO()
     console = Console(file=out, width=200, color_system=None)
+    previous = signal.signal(signal.SIGALRM, _alarm)
+    signal.setitimer(signal.ITIMER_REAL, limit)
     try:
         with contextlib.redirect_stderr(io.StringIO()) as err:
             code: int | str = int(main([str(a) for a in argv], console=console))
     except KeyboardInterrupt:
         raise
+    except _Hung:
+        return "hang", out.getvalue(), True
     except BaseException as exc:  # noqa: BLE001 - an escaping exception is exactly what is counted
         return type(exc).__name__, out.getvalue(), True
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
     text = out.getvalue() + err.getvalue()
     return code, text, code == 70 or "Traceback (most recent call last)" in text
 
 
+#: Keys with the values known to have crashed or hung the harness (issue 13), tried on purpose.
+RISKY = (
+    ("use", ('"broken_syntax:train"', '"raises_on_import:train"', '"exits_on_import:train"',
+             '"opens_missing_file:train"', '"builtins:print"', '"sys:exit"')),
+    ("count", ("100000", "1000000000", "1000000000000")),
+    ("values", ("[-1, 2]", "[1, 1]", "[true]", "[]")),
+    ("id", ('"no_such_module:Evil-v0"', '"Taxi-v3"', '"CliffWalking-v1"')),
+    ("episodes", ("0", "1000000000000")),
+    ("metrics", ('["steps-to-threshold"]', '["nope"]', "[]")),
+)
+
+
 def _mutate_toml(text: str, rng: np.random.Generator) -> str | bytes:
     lines = text.splitlines()
-    op = int(rng.integers(12))
+    op = int(rng.integers(14))
+    if op >= 12:  # a value known to have caused trouble, on a key that takes it
+        key, values = RISKY[int(rng.integers(len(RISKY)))]
+        value = values[int(rng.integers(len(values)))]
+        hits = [n for n, line in enumerate(lines) if line.split("=", 1)[0].strip() == key]
+        if hits:
+            lines[hits[0]] = f"{key} = {value}"
+        else:
+            lines.append(f"{key} = {value}")
+        return "\n".join(lines) + "\n"
     i = int(rng.integers(len(lines)))
     valued = [n for n, line in enumerate(lines) if "=" in line and not line.startswith("[")]
     if op <= 3 and valued:  # a value of another type or out of range (the commonest mistake)
@@ -146,10 +195,12 @@ def _mutate_toml(text: str, rng: np.random.Generator) -> str | bytes:
     return "\n".join(lines) + "\n"
 
 
-def manifest_cases(seed: int, n: int, folder: Path) -> Iterator[tuple[str, list[str]]]:
+def manifest_cases(seed: int, n: int, folder: Path) -> Iterator[tuple[str, list[str], None]]:
     """``n`` malformed manifests written under ``folder``, each with the command that reads it."""
     rng = np.random.default_rng(np.random.SeedSequence(seed))
     folder.mkdir(parents=True, exist_ok=True)
+    for name, source in BROKEN_MODULES.items():
+        (folder / f"{name}.py").write_text(source)
     for k in range(n):
         text = BASE_MANIFESTS[k % len(BASE_MANIFESTS)]
         mutated: str | bytes = text
@@ -158,7 +209,7 @@ def manifest_cases(seed: int, n: int, folder: Path) -> Iterator[tuple[str, list[
         path = folder / f"m{k:04d}.toml"
         path.write_bytes(mutated if isinstance(mutated, bytes) else mutated.encode("utf-8", "surrogatepass"))
         yield f"manifest #{k}", ["verify", str(path), "--no-run", "--results", str(folder / "no-results"),
-                                 "--baselines", str(folder / "no-baselines")]
+                                 "--baselines", str(folder / "no-baselines")], None
 
 
 def record_toy(folder: Path) -> Path:
@@ -280,12 +331,11 @@ def data_cases(seed: int, n: int, recorded: Path, folder: Path, *, evil_share: f
         yield f"results #{k}", ["compare", recorded / "res", target, *manifest], marker
 
 
-def sweep(cases: Iterator, on_case: Callable[[str, Any, str], None] | None = None) -> Sweep:
-    """Run every case; count exit codes, crashes and imports from data."""
+def sweep(cases: Iterator, on_case: Callable[[str, Any, str], None] | None = None, *, limit: float = 30.0) -> Sweep:
+    """Run every case (each stopped as a hang after ``limit`` seconds); count exit codes, crashes, imports."""
     out = Sweep()
-    for case in cases:
-        label, argv, marker = case if len(case) == 3 else (*case, None)
-        code, text, crashed = run_case(argv)
+    for label, argv, marker in cases:
+        code, text, crashed = run_case(argv, limit=limit)
         out.add(label, code, crashed)
         if marker is not None:
             out.import_attempts += 1
