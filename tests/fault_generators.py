@@ -14,6 +14,7 @@ from __future__ import annotations
 import contextlib
 import copy
 import dataclasses
+import importlib
 import io
 import json
 import signal
@@ -333,6 +334,8 @@ def data_cases(seed: int, n: int, recorded: Path, folder: Path, *, evil_share: f
 
 def sweep(cases: Iterator, on_case: Callable[[str, Any, str], None] | None = None, *, limit: float = 30.0) -> Sweep:
     """Run every case (each stopped as a hang after ``limit`` seconds); count exit codes, crashes, imports."""
+    for module in ("harness.manifest.loader", "harness.gate.verify", "harness.cli.verify", "harness.cli.compare"):
+        importlib.import_module(module)  # first imports (gymnasium, scipy) are slow: not inside a timed case
     out = Sweep()
     for label, argv, marker in cases:
         code, text, crashed = run_case(argv, limit=limit)

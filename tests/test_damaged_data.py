@@ -60,6 +60,8 @@ BASELINE_EDITS = {
     "run dropped": (lambda d: d["runs"].pop(), "[runs] holds 2 seeds"),
     "runs empty": (lambda d: d.__setitem__("runs", []), "[runs] is empty"),
     "huge integer return": (lambda d: d["runs"][0]["curve"]["returns"][1].__setitem__(0, 10**400), "too large for a float"),
+    "return near the float limit": (lambda d: d["runs"][0]["curve"]["returns"][1].__setitem__(0, 1e300),
+                                    "[curve.returns[1]] must be finite and within"),
 }
 
 

@@ -68,6 +68,38 @@ def test_sigterm_and_ctrl_c_end_the_command_with_130_and_no_traceback(tmp_path, 
     assert not list((tmp_path / "res").glob(".*.tmp"))
 
 
+_SLOW_IMPORT = """
+from pathlib import Path
+import time
+Path({marker!r}).touch()
+time.sleep(120)
+def train(run):
+    yield from ()
+"""
+
+
+@pytest.mark.parametrize("how", ["SIGTERM", "ctrl-c"])
+def test_a_signal_while_the_manifest_loads_ends_with_130_and_no_traceback(tmp_path, how):
+    """Outside the runner (here: importing the trainer's module) SIGTERM used to kill with -15."""
+    marker = tmp_path / "importing"
+    (tmp_path / "slow_import.py").write_text(_SLOW_IMPORT.format(marker=str(marker)))
+    manifest = tmp_path / "m.toml"
+    manifest.write_text(TOY.replace('use = "runner_toys:toy"', 'use = "slow_import:train"'))
+    proc = subprocess.Popen([sys.executable, "-m", "harness", "run", str(manifest), "--no-cache"], cwd=tmp_path,
+                            env=_env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+    try:
+        _wait_for(marker.exists)
+    finally:
+        if how == "SIGTERM":
+            proc.send_signal(signal.SIGTERM)
+        else:
+            os.killpg(proc.pid, signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, (out, err)
+    assert "Traceback" not in out + err
+
+
 def test_a_trainer_hanging_past_the_time_limit_ends_verify_with_exit_3(tmp_path):
     proc = _start(tmp_path, "verify", 'bad = ["7/1"]\nmode = "hang"', "--time-limit", "2")
     out, err = proc.communicate(timeout=120)

@@ -107,7 +107,7 @@ def test_builtin_fingerprint_is_the_modules_the_trainer_uses(harness_copy):
     train = resolve_trainer("dqn").train
     assert [name for name, _ in source_files(train)] == [
         "harness/__init__.py", "harness/core/__init__.py", "harness/core/config.py",
-        "harness/core/curves.py", "harness/core/errors.py", "harness/core/seeding.py",
+        "harness/core/curves.py", "harness/core/errors.py", "harness/core/jsondata.py", "harness/core/seeding.py",
         "harness/core/spec.py", "harness/trainers/__init__.py", "harness/trainers/dqn.py",
         "harness/trainers/envs.py", "harness/trainers/nn.py", "harness/trainers/replay.py",
         "harness/trainers/schedule.py",

@@ -125,9 +125,9 @@ def _main(argv: Sequence[str] | None, console: Console | None) -> int:
             where = f"traceback written to {_write_crash_report(argv)}"
         except OSError as report_error:
             where = f"the traceback could not be written ({report_error}); it follows:\n{traceback.format_exc()}"
-        console.print(f"internal error (a bug in rl-harness, not a verdict): {type(exc).__name__}: {escape(str(exc))}; "
+        console.print(f"internal error (a bug in rl-harness, not a verdict): {type(exc).__name__}: {exc}; "
                       f"{where}; please report it. Exit code {int(ExitCode.INTERNAL_ERROR)}.",
-                      highlight=False, soft_wrap=True)
+                      markup=False, highlight=False, soft_wrap=True)
         return ExitCode.INTERNAL_ERROR
 
 

@@ -15,10 +15,14 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
-__all__ = ["MAX_DEPTH", "as_int", "as_mapping", "as_number", "as_str", "loads_strict"]
+__all__ = ["MAX_ABS_NUMBER", "MAX_DEPTH", "as_int", "as_mapping", "as_number", "as_str", "loads_strict"]
 
 #: Deepest nesting of arrays and objects accepted; rl-harness files nest fewer than 10 levels.
 MAX_DEPTH = 64
+
+#: Largest magnitude of a number read as data (a return, a mean). Far beyond any episode return,
+#: and small enough that sums of squares of thousands of them stay finite in float64 (about 1.8e308).
+MAX_ABS_NUMBER = 1e100
 
 
 def _refuse_constant(name: str) -> Any:
@@ -70,15 +74,15 @@ def as_int(value: Any, key: str, *, minimum: int | None = None) -> int:
 
 
 def as_number(value: Any, key: str) -> float:
-    """``value`` as a finite float if it is a JSON number (not a boolean or string)."""
+    """``value`` as a float if it is a JSON number (not a boolean or string) within :data:`MAX_ABS_NUMBER`."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise ValueError(f"[{key}] must be a number, got {_show(value)}")
     try:
         number = float(value)
     except OverflowError:
         raise ValueError(f"[{key}] is too large for a float: {_show(value)}") from None
-    if not math.isfinite(number):
-        raise ValueError(f"[{key}] must be finite, got {number}")
+    if not math.isfinite(number) or abs(number) > MAX_ABS_NUMBER:
+        raise ValueError(f"[{key}] must be finite and within ±{MAX_ABS_NUMBER:g}, got {number:g}")
     return number
 
 

@@ -22,6 +22,7 @@ from pathlib import Path
 from threadpoolctl import threadpool_limits
 
 from harness.core.curves import Checkpoint, LearningCurve
+from harness.core.jsondata import MAX_ABS_NUMBER
 from harness.manifest.pins import installed_pins
 from harness.core.spec import RunSpec
 from harness.store.results import TRAINER_SOURCE
@@ -85,6 +86,8 @@ def _check(cp: object, spec: RunSpec, expected: int | None) -> str | None:
     if not cp.finite:
         bad = sorted({repr(r) for r in cp.returns if not math.isfinite(r)})
         return f"non-finite evaluation return ({', '.join(bad)}) at step {cp.step}"
+    if any(abs(r) > MAX_ABS_NUMBER for r in cp.returns):  # stored, it could not be read back (or summed)
+        return f"evaluation return beyond ±{MAX_ABS_NUMBER:g} at step {cp.step}"
     return None
 
 
