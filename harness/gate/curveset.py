@@ -176,7 +176,7 @@ def task_from_data(task: TaskSpec, *, where: str, manifest_task: TaskSpec | None
         return manifest_task
     if ":" in task.id or task.id not in gymnasium.registry:
         raise ResultsError(
-            f"{where}: [task.id] {task.id!r} is not a task in gymnasium's registry; ids read from results are "
+            f"{where}: [task.id] {task.id!r} is not a gymnasium task in its registry; ids read from results are "
             "never imported. Pass --manifest FILE to take the task from the manifest"
         )
     if task.kwargs and environment:
