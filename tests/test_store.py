@@ -14,6 +14,7 @@ from runner_toys import toy_specs
 
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.core.errors import ResultsError
+from harness.core.jsondata import MAX_ABS_NUMBER
 from harness.store.results import (
     RECORD_SCHEMA,
     ResultSet,
@@ -157,8 +158,9 @@ def test_failed_write_leaves_the_old_file_and_no_temporary(tmp_path, monkeypatch
 
 
 @settings(max_examples=60, deadline=None)
-@given(st.lists(st.lists(st.floats(-1e300, 1e300), min_size=1, max_size=4), min_size=1, max_size=6))
+@given(st.lists(st.lists(st.floats(-MAX_ABS_NUMBER, MAX_ABS_NUMBER), min_size=1, max_size=4), min_size=1, max_size=6))
 def test_any_finite_returns_survive_the_file_bit_for_bit(returns):
+    # Any return within the bound data may hold (larger ones are refused: sums of squares would overflow).
     # Python's repr of a float is the shortest string that reads back to the same double
     # (Python docs, "Floating Point Arithmetic"; Steele & White 1990 / Gay 1990 shortest round trip).
     spec = toy_specs(1)[0]
