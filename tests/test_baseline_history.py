@@ -23,6 +23,7 @@ from harness.cli import ExitCode, main
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.core.errors import BaselineError
 from harness.core.seeding import plan_seeds
+from harness.core.spec import sha256_of
 from harness.store.baseline import Baseline, SeedCurve, read_baseline, write_baseline
 from harness.store.history import baseline_history
 
@@ -40,7 +41,8 @@ def make_baseline(level: float, *, root: int = 5, recorder: str | None = None, n
     seeds = plan_seeds(count=4, root=root)
     runs = tuple(SeedCurve(s, LearningCurve((Checkpoint(0, (0.0,)), Checkpoint(100, (level + 0.01 * i,)))))
                  for i, s in enumerate(seeds))
-    return Baseline(manifest="toy", config_hash=f"sha256:{root}", config={"seeds": [s.to_json() for s in seeds]},
+    config = {"seeds": [s.to_json() for s in seeds]}
+    return Baseline(manifest="toy", config_hash=sha256_of(config), config=config,  # readers check the hash
                     versions={"numpy": numpy}, platform={}, recorded="2026-12-01T00:00:00Z", harness_version="0.1",
                     runs=runs, recorder=recorder)
 

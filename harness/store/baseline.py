@@ -268,7 +268,7 @@ def write_baseline(baseline: Baseline, path: str | os.PathLike, *, overwrite: bo
 
 def _describe_existing(path: Path) -> str:
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        data = loads_strict(path.read_text(encoding="utf-8"))  # deep nesting too: a ValueError
         return f"{data.get('manifest')!r} on {data.get('recorded')}"
     except (OSError, ValueError, AttributeError):
         return "an unreadable file"
