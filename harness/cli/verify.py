@@ -17,6 +17,7 @@ from rich.console import Console
 
 from harness.cli import ExitCode
 from harness.cli._options import add_execution_arguments, execution_options
+from harness.cli.staged import add_stage_arguments, stage_policy, verify_staged
 from harness.core.errors import ConfigError, HarnessError, RunFailedError
 from harness.manifest.policy import KNOWN_METRICS, GatePolicy
 from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES
@@ -161,7 +162,7 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
         console.print(f"error: {exc}", highlight=False)
         return ExitCode.BAD_INPUT
     manifest = load_manifest(args.manifest)
-    policy = policy_from_args(manifest.check, args)
+    policy = stage_policy(policy_from_args(manifest.check, args), args)
     scale = check_gate_policy(manifest, policy)  # before anything runs
     path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
     history = None
@@ -175,6 +176,8 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     if baseline is None:
         console.print(f"no baseline at {path}: checking against the manifest's published references only",
                       highlight=False)
+    if policy.stages is not None:
+        return verify_staged(args, manifest, policy, baseline, scale, console)
     try:
         results, folder = obtain_results(args, manifest, console)
         verdict = verify_manifest(manifest, results, baseline=baseline, policy=policy, scale=scale, history=history,
@@ -201,5 +204,6 @@ def register(subparsers: Any) -> None:
                              "file with: a re-recorded, new or removed baseline is said first in every report")
     add_run_arguments(parser)
     add_policy_arguments(parser)
+    add_stage_arguments(parser)
     add_report_arguments(parser)
     parser.set_defaults(handler=_handle)

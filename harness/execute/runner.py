@@ -521,12 +521,15 @@ def run_specs(
                      use_cache=use_cache, time_limit=time_limit, on_event=on_event)[0]
 
 
-def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **options) -> RunOutcome:
+def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, first: int | None = None,
+                 **options) -> RunOutcome:
     """Train every seed of ``manifest`` (a ``harness.manifest.loader.Manifest``); see :func:`run_specs`.
 
     ``results_dir`` defaults to ``results/<manifest name>/``; a user trainer's module is also
     looked for in the manifest's folder, as when the manifest was loaded. A ``time_limit`` of
     ``None`` takes the manifest's (``[trainer] time_limit`` of a command trainer), if any.
+    ``first`` trains only the first that many seeds of the plan (a stage of the staged gate);
+    the index then lists those.
     """
     if results_dir is None:
         results_dir = Path(DEFAULT_RESULTS_DIR) / manifest.name
@@ -534,4 +537,9 @@ def run_manifest(manifest, *, results_dir: str | os.PathLike | None = None, **op
         options["time_limit"] = manifest.time_limit
     if manifest.path is not None:
         options.setdefault("trainer_path", Path(manifest.path).resolve().parent)
-    return run_specs(manifest.runs(), results_dir=results_dir, **options)
+    specs = manifest.runs()
+    if first is not None:
+        if isinstance(first, bool) or not isinstance(first, int) or not 1 <= first <= len(specs):
+            raise ValueError(f"`first` must be a whole number from 1 to {len(specs)} (the manifest's seeds), got {first!r}")
+        specs = specs[:first]
+    return run_specs(specs, results_dir=results_dir, **options)

@@ -46,6 +46,7 @@ from typing import Any
 from harness.core.config import check_number
 from harness.core.errors import ConfigError, did_you_mean
 from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES
+from harness.stats.boundaries import BOUNDARY_KINDS
 
 __all__ = ["DEFAULT_MARGIN_SHARE", "KNOWN_METRICS", "METRIC_UNITS", "RETIRED_KEYS", "GatePolicy",
            "PublishedReference"]
@@ -64,6 +65,27 @@ RETIRED_KEYS = {
 
 #: Default margin: a tenth of the span between random-policy return and reward threshold.
 DEFAULT_MARGIN_SHARE = 0.1
+
+
+def _check_stages(stages: object, design: object) -> None:
+    """The staged gate's own checks; those against the manifest and baseline are in ``harness.gate.staged``."""
+    if design not in BOUNDARY_KINDS:
+        raise ConfigError(f"unknown design {design!r}.{did_you_mean(str(design), BOUNDARY_KINDS)}", key="stage_design")
+    if stages is None:
+        return
+    fix = "give strictly increasing seed counts of at least 2, e.g. [5, 10, 15, 20]"
+    if isinstance(stages, (str, bytes)) or not isinstance(stages, (tuple, list)):
+        raise ConfigError(f"must be a list of seed counts, got {stages!r}; {fix}", key="stages")
+    if len(stages) < 2:
+        raise ConfigError(f"needs at least 2 stages, got {list(stages)}; {fix} (one stage is the fixed gate: "
+                          "leave `stages` out)", key="stages")
+    for i, n in enumerate(stages):
+        if isinstance(n, bool) or not isinstance(n, int) or n < 2:
+            raise ConfigError(f"stage {i + 1} must be a whole number of at least 2 seeds, got {n!r}; {fix}",
+                              key="stages")
+        if i and n <= stages[i - 1]:
+            raise ConfigError(f"must be strictly increasing, got {list(stages)} (stage {i + 1} has {n} after "
+                              f"{stages[i - 1]}); {fix}", key="stages")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -105,6 +127,12 @@ class GatePolicy:
         Look for the first checkpoint range where the candidate falls significantly below.
     permutations
         Permutations of the max-statistic test used by ``locate``.
+    stages
+        Candidate seeds trained before each look of the staged (group-sequential) gate,
+        strictly increasing, e.g. ``(5, 10, 15, 20)``; ``None`` (the default) is the fixed gate
+        on every seed. See :mod:`harness.gate.staged`.
+    stage_design
+        The staged gate's boundaries, one of ``harness.stats.boundaries.BOUNDARY_KINDS``.
     """
 
     metrics: tuple[str, ...] = ("final", "auc")
@@ -122,6 +150,8 @@ class GatePolicy:
     allow_nondeterminism: bool = False
     locate: bool = True
     permutations: int = 2000
+    stages: tuple[int, ...] | None = None
+    stage_design: str = "obrien-fleming-spending"
 
     def __post_init__(self) -> None:
         if isinstance(self.metrics, str) or not isinstance(self.metrics, (tuple, list)) or not self.metrics:
@@ -158,11 +188,15 @@ class GatePolicy:
         check_number(self.final_share, "final_share", low=0, high=1, open_low=True)
         check_number(self.power, "power", low=0, high=1, open_low=True, open_high=True)
         check_number(self.permutations, "permutations", low=99, integer=True)
+        _check_stages(self.stages, self.stage_design)
+        if self.stages is not None:
+            object.__setattr__(self, "stages", tuple(self.stages))
 
     def to_json(self) -> dict:
         data = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
         data["metrics"] = list(self.metrics)
         data["margins"] = dict(self.margins)
+        data["stages"] = None if self.stages is None else list(self.stages)
         return data
 
     def margin_for(self, metric: str, *, floor: float | None, threshold: float | None, budget: int) -> float:

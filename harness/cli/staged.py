@@ -1,0 +1,147 @@
+"""``rlharness verify --stages 5,10,15,20``: the staged gate's options, its runs and its reports.
+
+The stages come from ``[check] stages`` or ``--stages`` (``--stages off`` runs the fixed gate).
+Each stage trains the manifest's first ``n`` seeds into one results folder, so a later stage,
+and a rerun of a stopped gate, reuses the seeds already trained (resumed or from the cache).
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from harness.cli import ExitCode
+from harness.cli._options import execution_options
+from harness.core.errors import ConfigError, HarnessError, RunFailedError
+from harness.gate.staged import Stage, StagedVerdict, plan_stages, staged_verify
+from harness.manifest.policy import GatePolicy
+from harness.stats.boundaries import BOUNDARY_KINDS
+
+__all__ = ["add_stage_arguments", "stage_policy", "verify_staged"]
+
+
+def add_stage_arguments(parser: argparse.ArgumentParser) -> None:
+    """``--stages`` and ``--stage-design`` (override ``[check] stages`` and ``stage_design``)."""
+    group = parser.add_argument_group("staged gate (overrides [check] stages and stage_design)")
+    group.add_argument("--stages", metavar="LIST",
+                       help="train the seeds in stages and stop at the first decision, e.g. 5,10,15,20 (the last is "
+                            "the manifest's seed count); 'off' runs the fixed gate on every seed")
+    group.add_argument("--stage-design", choices=BOUNDARY_KINDS,
+                       help="group-sequential boundaries (default obrien-fleming-spending)")
+
+
+def stage_policy(policy: GatePolicy, args: argparse.Namespace) -> GatePolicy:
+    """The policy with ``--stages``/``--stage-design`` applied (a ConfigError names a bad value)."""
+    changes: dict[str, Any] = {}
+    if args.stage_design is not None:
+        changes["stage_design"] = args.stage_design
+    if args.stages is not None:
+        text = args.stages.strip()
+        if text.lower() == "off":
+            changes["stages"] = None
+        else:
+            try:
+                changes["stages"] = tuple(int(part) for part in text.split(","))
+            except ValueError:
+                raise ConfigError(f"--stages: must be comma-separated seed counts such as 5,10,15,20 or 'off', "
+                                  f"got {args.stages!r}") from None
+    try:
+        return dataclasses.replace(policy, **changes)
+    except ConfigError as exc:
+        raise ConfigError(f"--{exc.key.replace('_', '-')}: " + str(exc).split(": ", 1)[-1]) from None
+
+
+def _runner(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Callable, Path]:
+    from harness.execute.runner import run_manifest
+    from harness.gate.curveset import last_line
+    from harness.report.progress import RunProgress
+
+    folder = Path(args.results) if args.results else Path("results") / manifest.name
+    options = execution_options(args)
+    if args.fresh:  # one new folder for every stage, and no cache: every seed really trains
+        options["use_cache"] = False
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
+
+    def obtain(n: int) -> tuple[Any, dict[int, str]]:
+        console.print(f"stage: the first {n} of {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...",
+                      highlight=False)
+        try:
+            with RunProgress(console) as progress:
+                outcome = run_manifest(manifest, results_dir=folder, first=n, on_event=progress, **options)
+        except ImportError as exc:
+            raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
+        failed = outcome.results.failed()
+        if failed:
+            lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
+            raise RunFailedError(f"{len(failed)} of {n} runs failed (results in {folder}):\n{lines}")
+        return outcome.results, dict(outcome.sources)
+
+    return obtain, folder
+
+
+def _stored(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Callable, Path]:
+    from harness.store.results import read_results
+
+    folder = Path(args.results) if args.results else Path("results") / manifest.name
+    results = read_results(folder)
+    records = tuple(sorted(results.records, key=lambda r: r.spec.index))
+
+    def obtain(n: int) -> tuple[Any, dict[int, str]]:
+        return dataclasses.replace(results, records=records[:n]), {i: "resumed" for i in range(n)}
+
+    return obtain, folder
+
+
+def _stage_line(verdict_plan: Any, stage: Stage) -> str:
+    parts = [f"{m} {lk.estimate:+.4g} [{lk.interval.low:.4g}, {lk.interval.high:.4g}] {lk.decision}"
+             for m, lk in zip(verdict_plan.metrics, stage.looks, strict=True)]
+    return (f"stage {stage.look}: {stage.n_candidate} seeds ({stage.trained} trained, {stage.reused} reused), "
+            f"{stage.seconds:.1f} s: " + "; ".join(parts) + f" -> {stage.decision}")
+
+
+def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, baseline: Any,
+                  console: Console) -> ExitCode:
+    """Check the plan (nothing trains on bad input), run the stages, report, and map the gate to an exit code."""
+    plan = plan_stages(manifest, policy, baseline, key="--stages" if args.stages else "check.stages")
+    if manifest.references:
+        console.print("note: the staged gate checks the baseline only; the manifest's [[reference]] tables are "
+                      "checked by the fixed gate (--stages off)", highlight=False)
+    obtain, folder = (_stored if args.no_run else _runner)(args, manifest, console)
+    try:
+        verdict = staged_verify(manifest, baseline, obtain, plan=plan, policy=policy, folder=str(folder),
+                                on_stage=lambda s: console.print(_stage_line(plan, s), highlight=False))
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    return finish_staged(verdict, args, console)
+
+
+def finish_staged(verdict: StagedVerdict, args: argparse.Namespace, console: Console) -> ExitCode:
+    """Print the terminal report, write the requested report files, map the gate to an exit code."""
+    from harness.core.atomic import atomic_write_text
+    from harness.report.staged import StagedReport, render_staged_junit, render_staged_markdown, staged_text
+
+    console.print(StagedReport(verdict))
+    writers = [(args.markdown, render_staged_markdown), (args.json, staged_text), (args.junit, render_staged_junit)]
+    for target, render in writers:
+        if target:
+            path = Path(target)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            atomic_write_text(path, render(verdict))
+            console.print(f"wrote {path}", highlight=False)
+    if args.plot:
+        from harness.report.plot import PlotUnavailableError, plot_curves
+
+        try:
+            console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}",
+                          highlight=False)
+        except PlotUnavailableError as exc:
+            console.print(f"plot skipped: {exc}", highlight=False)
+    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED
