@@ -6,9 +6,11 @@ no run cache):
 
 * unchanged, staged gate (``--stages 5,10,15,20``) and fixed gate (``--stages off``);
 * broken, the same two: a user trainer (``broken_dqn:train``, written next to a copy of the
-  manifest in a temporary folder) that runs the built-in DQN with the bootstrap term of the
-  Bellman target dropped (discount 0: every target is the immediate reward, so nothing learns
-  to balance the pole).
+  manifest in a temporary folder) that runs the built-in DQN with a learning-breaking bug: its
+  replay warm-up never ends (``warmup_steps`` set to the whole budget, as if steps were counted
+  in the wrong unit), so the network is never updated and the policy stays the initial one.
+  It is also cheap to run, which matters: a user trainer trains its seeds one by one (no
+  lockstep batching), and this machine's two cores are shared.
 
 Usage::
 
@@ -33,7 +35,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parent.parent
 
 BROKEN_DQN = '''
-"""The built-in DQN with a learning-breaking bug: the Bellman target drops the bootstrap term."""
+"""The built-in DQN with a learning-breaking bug: the replay warm-up lasts the whole budget."""
 import dataclasses
 
 from harness.trainers.dqn import DQNSettings
@@ -41,7 +43,7 @@ from harness.trainers.dqn import train as dqn_train
 
 
 def train(run):
-    yield from dqn_train(dataclasses.replace(run, config={**run.config, "discount": 0.0}))
+    yield from dqn_train(dataclasses.replace(run, config={**run.config, "warmup_steps": run.budget}))
 
 
 train.settings_type = DQNSettings
