@@ -8,7 +8,7 @@ from typing import Any
 
 from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
 
-__all__ = ["VERDICT_SCHEMA", "verdict_json", "verdict_text"]
+__all__ = ["VERDICT_SCHEMA", "json_text", "verdict_json", "verdict_text"]
 
 #: Schema tag of the JSON report; bumped on any incompatible change.
 VERDICT_SCHEMA = "rlharness.verdict/1"
@@ -75,6 +75,11 @@ def verdict_json(verdict: Verdict) -> dict:
 
 def verdict_text(verdict: Verdict) -> str:
     """:func:`verdict_json` as indented text (infinite interval ends written as strings)."""
+    return json_text(verdict_json(verdict))
+
+
+def json_text(data: dict) -> str:
+    """A report dict as indented JSON text: infinities written as ``"inf"``/``"-inf"``, NaN refused."""
     def fix(x: Any) -> Any:
         if isinstance(x, float) and x != x:  # NaN never appears in a verdict; refuse loudly if it does
             raise ValueError("a verdict value is NaN")
@@ -86,4 +91,4 @@ def verdict_text(verdict: Verdict) -> str:
             return [fix(val) for val in x]
         return x
 
-    return json.dumps(fix(verdict_json(verdict)), indent=2, allow_nan=False) + "\n"
+    return json.dumps(fix(data), indent=2, allow_nan=False) + "\n"

@@ -16,7 +16,7 @@ import xml.etree.ElementTree as ET
 from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
 from harness.report._rows import policy_line
 
-__all__ = ["render_junit"]
+__all__ = ["junit_document", "render_junit"]
 
 
 def render_junit(verdict: Verdict) -> str:
@@ -36,9 +36,20 @@ def render_junit(verdict: Verdict) -> str:
         cases.append((f"check {c.name}", c.reading, failure, skipped))
     if v.divergence is not None:
         cases.append(("divergence", v.divergence.reading, None, None))
+    return junit_document(suite, v.manifest, cases, {"gate": "passed" if v.passed else "failed",
+                                                     "rule": v.gate.rule, "policy": policy_line(v)})
+
+
+def junit_document(suite: ET.Element, manifest: str, cases: list[tuple[str, str, str | None, str | None]],
+                   properties: dict[str, str]) -> str:
+    """Fill ``suite`` with test cases ``(name, reading, failure, skipped)`` and properties; the XML text.
+
+    A case with a failure message is a ``<failure>``, one with a skip message ``<skipped>``; every
+    case carries its reading in ``<system-out>``. :data:`WHAT_A_PASS_MEANS` is always a property.
+    """
     failures = skipped_count = 0
     for name, reading, failure, skipped in cases:
-        case = ET.SubElement(suite, "testcase", classname=f"rlharness.{v.manifest}", name=name)
+        case = ET.SubElement(suite, "testcase", classname=f"rlharness.{manifest}", name=name)
         if failure is not None:
             failures += 1
             ET.SubElement(case, "failure", message=failure).text = failure
@@ -51,10 +62,8 @@ def render_junit(verdict: Verdict) -> str:
     suite.set("errors", "0")
     suite.set("skipped", str(skipped_count))
     props = ET.Element("properties")
-    ET.SubElement(props, "property", name="what_a_pass_means", value=WHAT_A_PASS_MEANS)
-    ET.SubElement(props, "property", name="gate", value="passed" if v.passed else "failed")
-    ET.SubElement(props, "property", name="rule", value=v.gate.rule)
-    ET.SubElement(props, "property", name="policy", value=policy_line(v))
+    for name, value in {"what_a_pass_means": WHAT_A_PASS_MEANS, **properties}.items():
+        ET.SubElement(props, "property", name=name, value=value)
     suite.insert(0, props)
     ET.indent(suite)
     return '<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(suite, encoding="unicode") + "\n"

@@ -8,7 +8,6 @@ gate stopped, and the seeds trained against the fixed gate's.
 from __future__ import annotations
 
 import dataclasses
-import json
 import xml.etree.ElementTree as ET
 from typing import Any
 
@@ -19,6 +18,8 @@ from rich.text import Text
 from harness.gate.staged import StagedVerdict
 from harness.gate.verify import WHAT_A_PASS_MEANS
 from harness.report._rows import num
+from harness.report.jsonreport import json_text
+from harness.report.junit import junit_document
 
 __all__ = ["STAGE_HEADER", "STAGED_SCHEMA", "StagedReport", "render_staged_junit", "render_staged_markdown",
            "stage_rows", "staged_json", "staged_text"]
@@ -166,16 +167,7 @@ def staged_json(verdict: StagedVerdict) -> dict:
 
 def staged_text(verdict: StagedVerdict) -> str:
     """:func:`staged_json` as indented text (infinite values written as strings)."""
-    def fix(x: Any) -> Any:
-        if isinstance(x, float) and x in (float("inf"), float("-inf")):
-            return "inf" if x > 0 else "-inf"
-        if isinstance(x, dict):
-            return {k: fix(val) for k, val in x.items()}
-        if isinstance(x, (list, tuple)):
-            return [fix(val) for val in x]
-        return x
-
-    return json.dumps(fix(staged_json(verdict)), indent=2, allow_nan=False) + "\n"
+    return json_text(staged_json(verdict))
 
 
 def render_staged_junit(verdict: StagedVerdict) -> str:
@@ -192,23 +184,6 @@ def render_staged_junit(verdict: StagedVerdict) -> str:
         failure = o.reading if o.metric in failing else None
         skipped = o.reading if failure is None and o.verdict in ("inconclusive", "undecided") else None
         cases.append((f"check {o.metric}", o.reading, failure, skipped))
-    failures = skipped_count = 0
-    for name, reading, failure, skipped in cases:
-        case = ET.SubElement(suite, "testcase", classname=f"rlharness.{v.manifest}", name=name)
-        if failure is not None:
-            failures += 1
-            ET.SubElement(case, "failure", message=failure).text = failure
-        elif skipped is not None:
-            skipped_count += 1
-            ET.SubElement(case, "skipped", message=skipped)
-        ET.SubElement(case, "system-out").text = reading
-    for key, value in (("tests", len(cases)), ("failures", failures), ("errors", 0), ("skipped", skipped_count)):
-        suite.set(key, str(value))
-    props = ET.Element("properties")
-    for name, value in (("what_a_pass_means", WHAT_A_PASS_MEANS), ("gate", "passed" if v.passed else "failed"),
-                        ("stopped_because", v.stopped_because), ("seeds_used", str(v.seeds_used)),
-                        ("seeds_saved", str(v.seeds_saved))):
-        ET.SubElement(props, "property", name=name, value=value)
-    suite.insert(0, props)
-    ET.indent(suite)
-    return '<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(suite, encoding="unicode") + "\n"
+    return junit_document(suite, v.manifest, cases, {
+        "gate": "passed" if v.passed else "failed", "stopped_because": v.stopped_because,
+        "seeds_used": str(v.seeds_used), "seeds_saved": str(v.seeds_saved)})
