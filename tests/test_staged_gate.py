@@ -25,7 +25,7 @@ from scipy import stats as sps
 from harness.cli import ExitCode
 from harness.gate.metrics import final_return
 from harness.store.baseline import read_baseline
-from test_cli_verify import BROKEN_RULE, manifest_text
+from test_cli_verify import BROKEN_RULE, at, manifest_text  # noqa: F401 (`at` is a fixture: it uses this module's `project`)
 from test_cli_verify import cli as _cli
 
 
@@ -60,13 +60,6 @@ def project(tmp_path_factory):
         code, out = cli("record", "lake.toml", "--workers", "2")
     assert code == ExitCode.OK, out
     return root
-
-
-@pytest.fixture
-def at(project, monkeypatch):
-    monkeypatch.chdir(project)
-    monkeypatch.setenv("RLHARNESS_CACHE_DIR", str(project / "cache"))
-    return project
 
 
 def _sources(folder: Path) -> list[str]:
