@@ -25,7 +25,7 @@ from scipy import stats as sps
 from harness.cli import ExitCode
 from harness.gate.metrics import final_return
 from harness.store.baseline import read_baseline
-from test_cli_verify import BROKEN_RULE, at, manifest_text  # noqa: F401 (`at` is a fixture: it uses this module's `project`)
+from test_cli_verify import BROKEN_RULE, FLAKY, at, manifest_text  # noqa: F401 (`at` is a fixture: it uses this module's `project`)
 from test_cli_verify import cli as _cli
 
 
@@ -54,6 +54,7 @@ def project(tmp_path_factory):
     (root / "lake.toml").write_text(lake())
     (root / "broken_rule.py").write_text(BROKEN_RULE)
     (root / "broken.toml").write_text(lake(use="broken_rule:train"))
+    (root / "flaky.py").write_text(FLAKY)
     with pytest.MonkeyPatch.context() as mp:
         mp.chdir(root)
         mp.setenv("RLHARNESS_CACHE_DIR", str(root / "cache"))
@@ -134,6 +135,14 @@ def test_undecided_look_trains_only_the_next_seeds_and_ends_without_the_fixed_wo
     assert "the last stage was reached without a decision at stage 2 of 2" in out
     code, out = cli("verify", "lake.toml", "--margin", "0.001", "--strict")
     assert code == ExitCode.GATE_FAILED and "final is inconclusive at the last stage and the policy is strict" in out
+
+
+def test_failed_seed_stops_the_stage_with_runs_failed(at):
+    (at / "flaky.toml").write_text(lake(use="flaky:train"))
+    code, out = cli("verify", "flaky.toml", "--workers", "2", "--results", "results/flaky", "--json", "out/flaky.json")
+    assert code == ExitCode.RUNS_FAILED, out
+    assert "1 of 3 runs failed" in out and "injected failure for the second seed" in out
+    assert not (at / "out/flaky.json").exists()
 
 
 def _snapshot(folder: Path) -> dict[str, bytes]:
