@@ -14,12 +14,10 @@ from __future__ import annotations
 import json
 import math
 import xml.etree.ElementTree as ET
-from io import StringIO
 from pathlib import Path
 
 import numpy as np
 import pytest
-from rich.console import Console
 from scipy import stats as sps
 
 from harness.cli import ExitCode

@@ -6,9 +6,9 @@ import dataclasses
 import json
 from typing import Any
 
-from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
+from harness.gate.verify import WHAT_A_PASS_MEANS, Provenance, Verdict
 
-__all__ = ["VERDICT_SCHEMA", "json_text", "verdict_json", "verdict_text"]
+__all__ = ["VERDICT_SCHEMA", "json_text", "provenance_json", "verdict_json", "verdict_text"]
 
 #: Schema tag of the JSON report; bumped on any incompatible change.
 VERDICT_SCHEMA = "rlharness.verdict/1"
@@ -27,6 +27,22 @@ def _mix(curves: Any) -> dict:
     """``{component: {version: [seed labels]}}`` of a side whose seeds ran under different versions."""
     mixed = getattr(curves, "mixed_versions", None) or {}
     return {name: {version: list(seeds) for version, seeds in mix.items()} for name, mix in mixed.items()}
+
+
+def provenance_json(prov: Provenance, baseline_set: Any = None, candidate_set: Any = None) -> dict:
+    """The provenance layer as a JSON-compatible dict (shared with the staged gate's report)."""
+    return {
+        "baseline": prov.baseline_label,
+        "candidate": prov.candidate_label,
+        "baseline_config_hash": prov.baseline_hash,
+        "candidate_config_hash": prov.candidate_hash,
+        "same_config": prov.same_config,
+        "changes": [dataclasses.asdict(c) for c in prov.changes],
+        "drift": [dataclasses.asdict(d) for d in prov.drift],
+        "trainer_source_changed": prov.source_changed,
+        "mixed_versions": {"baseline": _mix(baseline_set), "candidate": _mix(candidate_set)},
+        "reading": prov.reading,
+    }
 
 
 def verdict_json(verdict: Verdict) -> dict:
@@ -54,18 +70,7 @@ def verdict_json(verdict: Verdict) -> dict:
         "policy": v.policy.to_json(),
         "floor": v.floor,
         "threshold": v.threshold,
-        "provenance": {
-            "baseline": prov.baseline_label,
-            "candidate": prov.candidate_label,
-            "baseline_config_hash": prov.baseline_hash,
-            "candidate_config_hash": prov.candidate_hash,
-            "same_config": prov.same_config,
-            "changes": [dataclasses.asdict(c) for c in prov.changes],
-            "drift": [dataclasses.asdict(d) for d in prov.drift],
-            "trainer_source_changed": prov.source_changed,
-            "mixed_versions": {"baseline": _mix(v.baseline_set), "candidate": _mix(v.candidate_set)},
-            "reading": prov.reading,
-        },
+        "provenance": provenance_json(prov, v.baseline_set, v.candidate_set),
         "exact": {**exact, "nondeterministic": v.exact.nondeterministic, "reading": v.exact.reading},
         "checks": [_check(c) for c in v.checks],
         "divergence": None if v.divergence is None else {

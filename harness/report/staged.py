@@ -18,7 +18,7 @@ from rich.text import Text
 from harness.gate.staged import StagedVerdict
 from harness.gate.verify import WHAT_A_PASS_MEANS
 from harness.report._rows import num
-from harness.report.jsonreport import json_text
+from harness.report.jsonreport import json_text, provenance_json
 from harness.report.junit import junit_document
 
 __all__ = ["STAGE_HEADER", "STAGED_SCHEMA", "StagedReport", "render_staged_junit", "render_staged_markdown",
@@ -129,7 +129,6 @@ def _look(lk: Any) -> dict:
 def staged_json(verdict: StagedVerdict) -> dict:
     """The staged verdict as a JSON-compatible dict (``schema`` = :data:`STAGED_SCHEMA`)."""
     v, p = verdict, verdict.plan
-    prov = v.provenance
     return {
         "schema": STAGED_SCHEMA,
         "manifest": v.manifest,
@@ -155,11 +154,7 @@ def staged_json(verdict: StagedVerdict) -> dict:
         "outcomes": [{"metric": o.metric, "verdict": o.verdict, "pvalue_better": o.pvalue_better,
                       "reading": o.reading} for o in v.outcomes],
         "policy": v.policy.to_json(),
-        "provenance": {"baseline": prov.baseline_label, "candidate": prov.candidate_label,
-                       "baseline_config_hash": prov.baseline_hash, "candidate_config_hash": prov.candidate_hash,
-                       "same_config": prov.same_config, "changes": [dataclasses.asdict(c) for c in prov.changes],
-                       "drift": [dataclasses.asdict(d) for d in prov.drift],
-                       "trainer_source_changed": prov.source_changed, "reading": prov.reading},
+        "provenance": provenance_json(v.provenance),
         "exact": {"status": v.exact.status, "reason": v.exact.reason, "seed": v.exact.seed, "step": v.exact.step,
                   "reading": v.exact.reading},
     }
