@@ -34,7 +34,15 @@ from harness.core.errors import BaselineError, ConfigError, ResultsError
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
 from harness.gate.metrics import METRICS
-from harness.gate.verify import WHAT_A_PASS_MEANS, ExactCheck, GateDecision, Provenance, exact_check, provenance
+from harness.gate.verify import (
+    WHAT_A_PASS_MEANS,
+    ExactCheck,
+    GateDecision,
+    Provenance,
+    decide,
+    exact_check,
+    provenance,
+)
 from harness.manifest.policy import GatePolicy
 from harness.stats.sequential import SequentialLook, SequentialPlan
 
@@ -303,8 +311,11 @@ def _outcome(plan: StagePlan, metric: str, look: SequentialLook, stage_decision:
     return MetricOutcome(metric, "better" if p < plan.alpha_metric else "inconclusive", look, p)
 
 
-def _gate(outcomes: tuple[MetricOutcome, ...], policy: GatePolicy) -> GateDecision:
-    reasons, failing = [], []
+def _gate(outcomes: tuple[MetricOutcome, ...], policy: GatePolicy, exact: ExactCheck) -> GateDecision:
+    exact_part = decide((), policy, exact)  # nondeterminism fails the staged gate as it fails the fixed one
+    reasons = [] if exact_part.passed else list(exact_part.reasons)
+    failing = list(exact_part.failing)
+    notes = list(exact_part.reasons[1:]) if exact_part.passed else []
     for o in outcomes:
         lk = o.look
         if o.verdict == "worse":
@@ -316,7 +327,7 @@ def _gate(outcomes: tuple[MetricOutcome, ...], policy: GatePolicy) -> GateDecisi
             failing.append(o.metric)
     if reasons:
         return GateDecision(False, tuple(reasons), tuple(failing))
-    return GateDecision(True, ("no metric crossed its 'worse' boundary at any stage",))
+    return GateDecision(True, ("no metric crossed its 'worse' boundary at any stage", *notes))
 
 
 def _metric_arrays(curves: CurveSet, policy: GatePolicy, metrics: tuple[str, ...]) -> dict[str, np.ndarray]:
@@ -401,7 +412,7 @@ def staged_verify(
     outcomes = tuple(_outcome(plan, m, lk, last.decision, cand[m], base[m])
                      for m, lk in zip(plan.metrics, last.looks, strict=True))
     prov = provenance(base_set, cand_set)
+    exact = exact_check(base_set, cand_set, prov, policy)
     return StagedVerdict(manifest=manifest.name, plan=plan, stages=tuple(stages), outcomes=outcomes,
-                         provenance=prov, exact=exact_check(base_set, cand_set, prov, policy),
-                         gate=_gate(outcomes, policy), policy=policy, folder=folder,
+                         provenance=prov, exact=exact, gate=_gate(outcomes, policy, exact), policy=policy, folder=folder,
                          baseline_set=base_set, candidate_set=cand_set)
