@@ -176,5 +176,5 @@ def test_bad_stage_plan_is_bad_input_and_trains_nothing(at, manifest, args, mess
 
 def test_stages_off_runs_the_fixed_gate(at):
     code, out = cli("verify", "lake.toml", "--stages", "off", "--workers", "2")
-    assert code in (ExitCode.OK, ExitCode.GATE_FAILED), out
+    assert code == ExitCode.OK, out  # an unchanged rerun: every seed identical to the baseline
     assert "3. statistical checks" in out and "(staged)" not in out
