@@ -81,7 +81,9 @@ def test_unchanged_rerun_stops_early_as_equivalent(at):
     cand = base[:3]  # an unchanged rerun reproduces the baseline's first seeds bitwise
     look = report["stages"][0]["metrics"]["final"]
     assert look["estimate"] == pytest.approx(cand.mean() - base.mean(), abs=1e-12)
-    assert look["pvalue_worse"] == pytest.approx(sps.ttest_ind(cand, base, equal_var=False,
+    # The default rule (drop-beyond-margin) tests H0: drop <= margin, i.e. Welch on the candidate shifted up by it.
+    assert report["plan"]["shifts"] == {"final": 0.3} and report["gate"]["rule"] == "drop-beyond-margin"
+    assert look["pvalue_worse"] == pytest.approx(sps.ttest_ind(cand + 0.3, base, equal_var=False,
                                                                alternative="less").pvalue, rel=1e-9)
     tost = max(sps.ttest_ind(cand + 0.3, base, equal_var=False, alternative="greater").pvalue,
                sps.ttest_ind(cand - 0.3, base, equal_var=False, alternative="less").pvalue)
@@ -102,6 +104,7 @@ def test_broken_trainer_stops_early_as_worse_and_a_rerun_reuses_its_seeds(at):
     assert "exact check skipped: the configuration differs" in out
     report = json.loads((at / "out/broken.json").read_text())
     assert report["seeds"]["trained_now"] == 3 and report["seeds"]["saved"] == 3
+    assert "final fails rule drop-beyond-margin (the drop is significantly larger than the margin) at stage 1" in out
     assert _sources(at / "results/broken") == ["trained"] * 3  # the index lists the stage's seeds only
     failed = [c.get("name") for c in ET.parse(at / "out/broken.xml").getroot().iter("testcase")
               if c.find("failure") is not None]
@@ -131,8 +134,10 @@ def test_undecided_look_trains_only_the_next_seeds_and_ends_without_the_fixed_wo
     assert [s["decision"] for s in report["stages"]] == ["continue", "final"]
     assert report["outcomes"][0]["verdict"] == "inconclusive" and report["seeds"]["saved"] == 0
     assert "the last stage was reached without a decision at stage 2 of 2" in out
-    code, out = cli("verify", "lake.toml", "--margin", "0.001", "--strict")
+    code, out = cli("verify", "lake.toml", "--margin", "0.001", "--strict", "--rule", "any-drop", "--json",
+                    "out/strict.json")
     assert code == ExitCode.GATE_FAILED and "final is inconclusive at the last stage and the policy is strict" in out
+    assert json.loads((at / "out/strict.json").read_text())["plan"]["shifts"] == {"final": 0.0}  # any-drop: H0 no drop
 
 
 def test_failed_seed_stops_the_stage_with_runs_failed(at):
@@ -162,6 +167,8 @@ def _snapshot(folder: Path) -> dict[str, bytes]:
      "[check.stages]: the baseline baselines/lake.json holds 6 seeds, fewer than the last stage (10)"),
     (lake(check=CHECK.replace('["final"]', '["steps-to-threshold"]')), (),
      "bad.toml [check.metrics]: the staged gate cannot check steps-to-threshold"),
+    (lake(check=CHECK + 'rule = "interval-past-margin"\n'), (),
+     "bad.toml [check.rule]: the staged gate applies rule drop-beyond-margin"),
 ])
 def test_bad_stage_plan_is_bad_input_and_trains_nothing(at, manifest, args, message):
     (at / "bad.toml").write_text(manifest)

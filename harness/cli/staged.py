@@ -106,10 +106,10 @@ def _stage_line(verdict_plan: Any, stage: Stage) -> str:
             f"{stage.seconds:.1f} s: " + "; ".join(parts) + f" -> {stage.decision}")
 
 
-def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, baseline: Any,
+def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, baseline: Any, scale: Any,
                   console: Console) -> ExitCode:
     """Check the plan (nothing trains on bad input), run the stages, report, and map the gate to an exit code."""
-    plan = plan_stages(manifest, policy, baseline, key="--stages" if args.stages else "check.stages")
+    plan = plan_stages(manifest, policy, baseline, scale, key="--stages" if args.stages else "check.stages")
     if manifest.references:
         console.print("note: the staged gate checks the baseline only; the manifest's [[reference]] tables are "
                       "checked by the fixed gate (--stages off)", highlight=False)

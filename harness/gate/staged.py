@@ -2,9 +2,13 @@
 
 With ``[check] stages = [5, 10, 15, 20]`` (or ``verify --stages 5,10,15,20``) verification
 trains the first 5 seeds of the manifest's seed plan, looks, and trains the next 5 only if the
-look decided nothing; it stops at the first look where a metric is significantly worse (the
-gate fails), where every metric is equivalent within its margin (the gate passes), or at the
-last stage (the fixed gate's outcomes without its fixed-alpha "worse" test, see below).
+look decided nothing; it stops at the first look where a metric is worse under the gate's rule
+(the gate fails), where every metric is equivalent within its margin (the gate passes), or at
+the last stage (the fixed gate's outcomes without its fixed-alpha "worse" test, see below).
+"Worse" follows ``[check] rule`` as the fixed gate does: with the default
+``drop-beyond-margin`` a look tests ``H0: drop <= margin`` (the sequential test's ``shift`` is
+the margin), with ``any-drop`` it tests ``H0: no drop``; the other two rules combine a test with
+a point estimate or an interval and are not staged (refused before anything trains).
 
 Each look compares the candidate's first ``n_k`` seeds with the whole recorded baseline by
 :func:`harness.stats.sequential_look` (Welch's t, group-sequential boundaries of a published
@@ -32,21 +36,23 @@ import numpy as np
 from harness import stats
 from harness.core.errors import BaselineError, ConfigError, ResultsError
 from harness.gate.compare import metric_values
-from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.gate.curveset import CurveSet
 from harness.gate.metrics import METRICS
+from harness.gate.margins import GateScale
 from harness.gate.verify import (
     WHAT_A_PASS_MEANS,
     ExactCheck,
     GateDecision,
     Provenance,
-    decide,
     exact_check,
     provenance,
+    with_exact,
 )
 from harness.manifest.policy import GatePolicy
+from harness.stats.drop_rules import DROP_RULES
 from harness.stats.sequential import SequentialLook, SequentialPlan
 
-__all__ = ["MetricOutcome", "Stage", "StagePlan", "StagedVerdict", "plan_stages", "staged_verify"]
+__all__ = ["STAGED_RULES", "MetricOutcome", "Stage", "StagePlan", "StagedVerdict", "plan_stages", "staged_verify"]
 
 #: What one stage's seeds come from: ``obtain(n) -> (result set of the first n seeds, source per run index)``.
 Obtain = Callable[[int], tuple[Any, Mapping[int, str]]]
@@ -72,6 +78,8 @@ class StagePlan:
     sequential
         The group-sequential plan of one metric (boundaries of "worse" at ``alpha_metric`` and of
         each equivalence half at ``alpha``).
+    rule
+        The gate rule that says what "worse" is (one of :data:`STAGED_RULES`).
     """
 
     stages: tuple[int, ...]
@@ -83,6 +91,7 @@ class StagePlan:
     alpha: float
     alpha_metric: float
     sequential: SequentialPlan
+    rule: str = "drop-beyond-margin"
 
     @property
     def design(self) -> str:
@@ -91,7 +100,8 @@ class StagePlan:
     @property
     def reading(self) -> str:
         return (f"stages {', '.join(map(str, self.stages))} candidate seeds against all {self.baseline_seeds} "
-                f"baseline seeds; {self.design} boundaries; 'worse' at alpha {self.alpha:g} split over "
+                f"baseline seeds; {self.design} boundaries; rule {self.rule} "
+                f"({DROP_RULES[self.rule].fails_when}) at alpha {self.alpha:g} split over "
                 f"{len(self.metrics)} metric{'s' if len(self.metrics) != 1 else ''} (Bonferroni, "
                 f"{self.alpha_metric:.3g} each); equivalence needs every metric inside its margin at one look")
 
@@ -220,19 +230,17 @@ def _stage_error(message: str, manifest: Any, key: str) -> ConfigError:
     return ConfigError(message, path=path, key=key) if not key.startswith("--") else ConfigError(f"{key}: {message}")
 
 
-def _shift(policy: GatePolicy, margin: float) -> float:
-    """The drop a metric's "worse" test tolerates: any significant drop fails the fixed gate today."""
-    return 0.0
+#: The gate rules the staged gate applies, and the drop each one's "worse" test tolerates (``shift``):
+#: drop-beyond-margin tests ``H0: drop <= margin`` at every look, any-drop ``H0: drop <= 0``.
+STAGED_RULES = ("drop-beyond-margin", "any-drop")
 
 
-def _margins(manifest: Any, policy: GatePolicy, metrics: tuple[str, ...], budget: int) -> dict[str, float]:
-    threshold = policy.threshold if policy.threshold is not None else task_threshold(manifest.task)
-    need_floor = policy.margin is None and policy.floor is None and any(m not in policy.margins for m in metrics)
-    floor = random_policy_return(manifest.task, manifest.evaluation) if need_floor else None
-    return {m: policy.margin_for(m, floor=floor, threshold=threshold, budget=budget) for m in metrics}
+def _shift(rule: str, margin: float) -> float:
+    return margin if rule == "drop-beyond-margin" else 0.0
 
 
-def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, *, key: str = "check.stages") -> StagePlan:
+def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, scale: GateScale, *,
+                key: str = "check.stages") -> StagePlan:
     """Check the staged gate against the manifest and its baseline, and plan it (nothing trains).
 
     Parameters
@@ -243,6 +251,8 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, *, key: str = 
         The gate policy with ``stages`` set.
     baseline
         The recorded baseline (``harness.store.baseline.Baseline``) or None.
+    scale
+        The metrics' margins (``harness.gate.verify.check_gate_policy``).
     key
         Where the stages were given, for messages: ``"check.stages"`` or a command-line option.
 
@@ -250,8 +260,8 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, *, key: str = 
     ------
     ConfigError
         The last stage is not the manifest's seed count, a metric is censored
-        (``steps-to-threshold``), or the baseline has fewer seeds than the last stage;
-        the message names the manifest file and the key.
+        (``steps-to-threshold``), the rule is not one of :data:`STAGED_RULES`, or the baseline
+        has fewer seeds than the last stage; the message names the manifest file and the key.
     BaselineError
         There is no baseline (published references alone cannot be staged).
     """
@@ -269,6 +279,11 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, *, key: str = 
             f"the staged gate cannot check {', '.join(censored)} (seeds that never reach the threshold have no value "
             "for a t-test); list only final and auc in [check] metrics, or leave `stages` out", manifest,
             "check.metrics" if not key.startswith("--") else key)
+    if policy.rule not in STAGED_RULES:
+        raise _stage_error(
+            f"the staged gate applies rule drop-beyond-margin (the default: H0 drop <= margin at every stage) or "
+            f"any-drop (H0 no drop), not {policy.rule!r} ({DROP_RULES[policy.rule].fails_when}): set `rule` to one "
+            "of them, or leave `stages` out", manifest, "check.rule" if not key.startswith("--") else key)
     if baseline is None:
         raise BaselineError(f"the staged gate needs a recorded baseline of {manifest.name!r} (published references "
                             "cannot be staged): record one with `rlharness record MANIFEST`")
@@ -280,13 +295,13 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, *, key: str = 
             "trained needs its baseline seed for the exact check and the last look must be the fixed gate's "
             "comparison; record the baseline with all the manifest's seeds", manifest, key)
     metrics = tuple(policy.metrics)
-    margins = _margins(manifest, policy, metrics, manifest.budget)
+    margins = {m: scale.margin(m) for m in metrics}
     alpha_metric = policy.alpha / len(metrics)
     plan = stats.sequential_plan(stages, baseline_stages=(n_base,) * len(stages), alpha=alpha_metric,
                                  alpha_equivalence=policy.alpha, kind=policy.stage_design)
     return StagePlan(stages=stages, baseline_seeds=n_base, fixed_seeds=count, metrics=metrics, margins=margins,
-                     shifts={m: _shift(policy, margins[m]) for m in metrics}, alpha=policy.alpha,
-                     alpha_metric=alpha_metric, sequential=plan)
+                     shifts={m: _shift(policy.rule, margins[m]) for m in metrics}, alpha=policy.alpha,
+                     alpha_metric=alpha_metric, sequential=plan, rule=policy.rule)
 
 
 def _stage_decision(looks: tuple[SequentialLook, ...]) -> str:
@@ -312,22 +327,22 @@ def _outcome(plan: StagePlan, metric: str, look: SequentialLook, stage_decision:
 
 
 def _gate(outcomes: tuple[MetricOutcome, ...], policy: GatePolicy, exact: ExactCheck) -> GateDecision:
-    exact_part = decide((), policy, exact)  # nondeterminism fails the staged gate as it fails the fixed one
-    reasons = [] if exact_part.passed else list(exact_part.reasons)
-    failing = list(exact_part.failing)
-    notes = list(exact_part.reasons[1:]) if exact_part.passed else []
+    reasons, failing = [], []
+    rule = DROP_RULES[policy.rule]
     for o in outcomes:
         lk = o.look
         if o.verdict == "worse":
-            reasons.append(f"{o.metric} is significantly worse at stage {lk.look} ({lk.n_candidate} seeds): "
-                           f"{lk.estimate:+.4g}, Welch p = {lk.pvalue_worse:.3g} below the boundary {lk.nominal_worse:.3g}")
+            reasons.append(f"{o.metric} fails rule {rule.name} ({rule.fails_when}) at stage {lk.look} "
+                           f"({lk.n_candidate} seeds): {lk.estimate:+.4g}, margin ±{lk.margin:.4g}, Welch p = "
+                           f"{lk.pvalue_worse:.3g} below the boundary {lk.nominal_worse:.3g}")
             failing.append(o.metric)
         elif o.verdict == "inconclusive" and policy.strict:
             reasons.append(f"{o.metric} is inconclusive at the last stage and the policy is strict")
             failing.append(o.metric)
-    if reasons:
-        return GateDecision(False, tuple(reasons), tuple(failing))
-    return GateDecision(True, ("no metric crossed its 'worse' boundary at any stage", *notes))
+    gate = (GateDecision(False, tuple(reasons), tuple(failing), rule.name) if reasons else
+            GateDecision(True, (f"no metric crossed its 'worse' boundary ({rule.fails_when}) at any stage",), (),
+                         rule.name))
+    return with_exact(gate, exact, policy)  # nondeterminism fails the staged gate as it fails the fixed one
 
 
 def _metric_arrays(curves: CurveSet, policy: GatePolicy, metrics: tuple[str, ...]) -> dict[str, np.ndarray]:

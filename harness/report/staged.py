@@ -135,7 +135,8 @@ def staged_json(verdict: StagedVerdict) -> dict:
         "passed": v.passed,
         "summary": v.summary,
         "what_a_pass_means": WHAT_A_PASS_MEANS,
-        "gate": {"passed": v.gate.passed, "reasons": list(v.gate.reasons), "failing": list(v.gate.failing)},
+        "gate": {"passed": v.gate.passed, "rule": v.gate.rule, "reasons": list(v.gate.reasons),
+                 "failing": list(v.gate.failing)},
         "decision": v.decision,
         "stopped_because": v.stopped_because,
         "seeds": {"used": v.seeds_used, "fixed": p.fixed_seeds, "saved": v.seeds_saved,
@@ -180,5 +181,5 @@ def render_staged_junit(verdict: StagedVerdict) -> str:
         skipped = o.reading if failure is None and o.verdict in ("inconclusive", "undecided") else None
         cases.append((f"check {o.metric}", o.reading, failure, skipped))
     return junit_document(suite, v.manifest, cases, {
-        "gate": "passed" if v.passed else "failed", "stopped_because": v.stopped_because,
+        "gate": "passed" if v.passed else "failed", "rule": v.gate.rule, "stopped_because": v.stopped_because,
         "seeds_used": str(v.seeds_used), "seeds_saved": str(v.seeds_saved)})
