@@ -155,7 +155,7 @@ def staged_json(verdict: StagedVerdict) -> dict:
         "outcomes": [{"metric": o.metric, "verdict": o.verdict, "pvalue_better": o.pvalue_better,
                       "reading": o.reading} for o in v.outcomes],
         "policy": v.policy.to_json(),
-        "provenance": provenance_json(v.provenance),
+        "provenance": provenance_json(v.provenance, v.baseline_set, v.candidate_set),
         "exact": {"status": v.exact.status, "reason": v.exact.reason, "seed": v.exact.seed, "step": v.exact.step,
                   "reading": v.exact.reading},
     }
