@@ -148,7 +148,7 @@ def test_unchanged_rerun_is_identical_and_passes(at):
     assert code == ExitCode.OK, out
     assert "config hash equal; same installed versions" in out
     assert "every seed's curve is bitwise identical to the baseline" in out
-    assert "gate PASSED for toy" in out
+    assert "PASSED  toy: " in out
     assert "it does not prove the code correct" in out
     report = json.loads((at / "out/v.json").read_text())
     assert report["schema"] == "rlharness.verdict/1" and report["passed"] is True
@@ -169,7 +169,7 @@ def test_broken_learning_rule_is_worse_and_fails(at):
     assert "config hash differs (1 key changed: trainer)" in out
     assert '"tabular-q"' in out and '"broken_rule:train"' in out
     assert "final fails rule drop-beyond-margin" in out
-    assert "exact check skipped: the configuration differs" in out
+    assert "exact check: skipped: the configuration differs" in out
     assert "the candidate first falls significantly below between steps" in out
     suite = ET.parse(at / "out/broken.xml").getroot()
     failed = [c.get("name") for c in suite.iter("testcase") if c.find("failure") is not None]
@@ -195,7 +195,7 @@ def test_dependency_upgrade_is_verified_statistically(at, tmp_path):
     path = write_baseline(pinned, tmp_path / "old-libs.json")
     code, out = cli(at, "verify", "toy.toml", "--baseline", str(path), "--no-run")
     assert code == ExitCode.OK, out
-    assert "exact check skipped: installed versions differ (gymnasium 0.29.1 ->" in out
+    assert "exact check: skipped: installed versions differ (gymnasium 0.29.1 ->" in out
     assert "version drift" in out and "numpy" in out
     assert "final" in out.split("3. statistical checks")[1]
 

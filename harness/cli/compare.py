@@ -3,7 +3,8 @@
 A is the reference (for example the main branch or the old library version),
 B the candidate. The gate policy is the defaults, the ``[check]`` table of
 ``--manifest`` if given, and the command line's overrides. Exit codes as for
-``verify``: 0 gate passed, 1 gate failed, 2 bad input, 3 runs failed.
+``verify``, except that nothing is trained: 0 gate passed, 1 gate failed, 2 bad input, 3 a results
+folder holds failed runs.
 """
 
 from __future__ import annotations
@@ -48,7 +49,7 @@ def register(subparsers: Any) -> None:
         "compare", help="compare two stored result sets (no rerun)",
         description=(
             "Compare two stored result folders with the statistics of verify: A is the reference, B the candidate. "
-            "Exit 0 gate passed, 1 gate failed, 2 bad input, 3 runs failed."
+            "It trains nothing. Exit 0 gate passed, 1 gate failed, 2 bad input, 3 a results folder holds failed runs."
         ),
     )
     parser.add_argument("a", metavar="A", help="results folder of the reference (e.g. results/<name>/ on main)")

@@ -85,7 +85,7 @@ def add_policy_arguments(parser: argparse.ArgumentParser) -> None:
     """Command-line overrides of the manifest's ``[check]`` policy."""
     group = parser.add_argument_group("gate policy (overrides [check] in the manifest)")
     group.add_argument("--metrics", metavar="LIST", help=f"comma-separated metrics from {', '.join(KNOWN_METRICS)}")
-    group.add_argument("--alpha", type=float, help="family-wise error rate of the checks (default 0.05)")
+    group.add_argument("--alpha", type=float, help="family-wise error rate of the checks (default: the manifest's [check] alpha, else 0.05)")
     margin = group.add_mutually_exclusive_group()
     margin.add_argument("--margin", type=float, help="absolute equivalence margin in the metric's units")
     margin.add_argument("--margin-share", type=float, metavar="SHARE",

@@ -181,7 +181,7 @@ class Divergence:
                     f"{self.seeds_needed} per side): the permutation test's smallest p-value here is {self.pvalue:.3g}, "
                     f"above alpha = {self.alpha:g}.")
         if not self.found:
-            return f"the curves do not part: at no checkpoint is the candidate significantly below (smallest adjusted p = {self.pvalue:.3g})."
+            return f"nowhere: at no checkpoint is the candidate significantly below (smallest adjusted p = {self.pvalue:.3g})."
         return (
             f"the candidate first falls significantly below between steps {self.first_step} and {self.last_step} "
             f"(family-wise adjusted p = {self.pvalue:.3g})."

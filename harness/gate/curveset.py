@@ -36,7 +36,7 @@ class CurveSet:
     Attributes
     ----------
     label
-        Where it came from, for reports (``"baseline baselines/x.json"``).
+        Where it came from, for reports (``"baselines/x.json (recorded ...)"``).
     manifest, config_hash, config
         The manifest's name, config hash and resolved configuration.
     versions
@@ -62,7 +62,7 @@ class CurveSet:
     def from_baseline(cls, baseline: Baseline) -> CurveSet:
         where = str(baseline.path) if baseline.path is not None else baseline.manifest
         return cls(
-            label=f"baseline {where} (recorded {baseline.recorded})",
+            label=f"{where} (recorded {baseline.recorded})",
             manifest=baseline.manifest,
             config_hash=baseline.config_hash,
             config=baseline.config,

@@ -159,7 +159,7 @@ class ExactCheck:
         if self.status == "identical":
             return "every seed's curve is bitwise identical to the baseline."
         if self.status == "skipped":
-            return f"exact check skipped: {self.reason}."
+            return f"skipped: {self.reason}."
         where = f"first difference at seed {self.seed}, checkpoint step {self.step}"
         if self.nondeterministic:
             return ("curves are not bitwise identical although the configuration, the installed versions and the "
@@ -202,14 +202,18 @@ class Verdict:
         return self.scale.threshold
 
     @property
-    def summary(self) -> str:
-        """One line: the gate's outcome and the count of each verdict."""
+    def tally(self) -> str:
+        """The count of each verdict and the exact check's outcome, without the gate's outcome."""
         counts = {v: sum(c.verdict == v for c in self.checks) for v in ("equivalent", "better", "worse", "inconclusive")}
         listed = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
         exact = {"identical": "; curves bitwise identical", "differs": "; curves not bitwise identical"}
         note = " (nondeterminism)" if self.exact.nondeterministic else ""
-        return (f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {listed or 'no checks'}"
-                f"{exact.get(self.exact.status, '')}{note}.")
+        return f"{listed or 'no checks'}{exact.get(self.exact.status, '')}{note}."
+
+    @property
+    def summary(self) -> str:
+        """One line: the gate's outcome and the count of each verdict."""
+        return f"gate {'PASSED' if self.passed else 'FAILED'} for {self.manifest}: {self.tally}"
 
     def explain(self) -> str:
         """A plain-text explanation: the summary, each layer's reading and the gate's reasons."""

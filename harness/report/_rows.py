@@ -6,12 +6,13 @@ import json
 import math
 from typing import Any
 
+from harness.core.seeding import RunSeed, describe_seed_change
 from harness.gate.verify import Verdict
 from harness.stats.drop_rules import DROP_RULES
 
 __all__ = ["CHECK_HEADER", "check_notes", "check_rows", "config_rows", "drift_rows", "num", "policy_line", "value"]
 
-CHECK_HEADER = ("check", "baseline", "candidate", "difference [interval]", "margin", "p (Holm)", "verdict")
+CHECK_HEADER = ("check", "baseline", "candidate", "difference [interval]", "margin", "p", "verdict")
 
 
 def num(x: float | None, digits: int = 4) -> str:
@@ -29,11 +30,15 @@ def value(v: Any) -> str:
 
 
 def _side(mean: float, sd: float, n: int) -> str:
-    return f"{num(mean)} ± {num(sd, 3)} ({n})"
+    return f"{num(mean)} ± {num(sd, 3)} sd ({n})"
 
 
 def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
-    """One row per statistical check, in :data:`CHECK_HEADER` order (sides are ``mean ± sd (seeds)``)."""
+    """One row per statistical check, in :data:`CHECK_HEADER` order (sides are ``mean ± sd "sd" (seeds)``).
+
+    The p-value is the one behind the verdict: the equivalence (TOST) p-value beside "equivalent",
+    the Holm-adjusted one-sided p-value otherwise.
+    """
     return [
         (
             c.name,
@@ -41,7 +46,7 @@ def check_rows(verdict: Verdict) -> list[tuple[str, ...]]:
             _side(c.candidate_mean, c.candidate_sd, c.candidate_n),
             f"{c.estimate:+.3g} [{num(c.interval.low, 3)}, {num(c.interval.high, 3)}]",
             f"±{num(c.margin)}",
-            f"{c.pvalue:.3g}",
+            f"{c.pvalue_equivalence:.3g} TOST" if c.verdict == "equivalent" else f"{c.pvalue:.3g} Holm",
             c.verdict + (" (within margin)" if c.within_margin else " (beyond margin)" if c.beyond_margin
                          else " (too few seeds)" if c.undecidable is not None else ""),
         )
@@ -54,7 +59,8 @@ def check_notes(verdict: Verdict) -> list[str]:
     if not verdict.checks:
         return []
     level = verdict.checks[0].confidence_level
-    notes = [f"difference = candidate - baseline with its {level:.0%} interval; p: Holm-adjusted one-sided p-value "
+    notes = [f"difference = candidate - baseline with its {level:.0%} interval; sides: mean ± standard deviation "
+             "across seeds (seeds); p: TOST = the equivalence p-value, Holm = the Holm-adjusted one-sided p-value "
              "(of 'worse', or of 'better' for a better verdict)."]
     notes += [f"{c.name}: {c.against} (mean {num(c.baseline_mean)}, sd {num(c.baseline_sd)}, {c.baseline_n} seeds)."
               for c in verdict.checks if c.against != "baseline"]
@@ -72,9 +78,23 @@ def check_notes(verdict: Verdict) -> list[str]:
     return notes
 
 
+def _seeds(listed: Any) -> tuple[RunSeed, ...] | None:
+    try:
+        return tuple(RunSeed.from_json(s) for s in listed)
+    except (TypeError, KeyError, ValueError, AttributeError):
+        return None
+
+
 def config_rows(verdict: Verdict) -> list[tuple[str, str, str]]:
-    """Changed resolved configuration keys: (key, baseline, candidate)."""
-    return [(c.key, value(c.baseline), value(c.candidate)) for c in verdict.provenance.changes]
+    """Changed resolved configuration keys: (key, baseline, candidate); a seed change in a few words."""
+    rows = []
+    for c in verdict.provenance.changes:
+        old, new = (_seeds(c.baseline), _seeds(c.candidate)) if c.key == "seeds" else (None, None)
+        if old is not None and new is not None:
+            rows.append(("seeds", describe_seed_change(old, new), ""))  # one phrase for both sides
+        else:
+            rows.append((c.key, value(c.baseline), value(c.candidate)))
+    return rows
 
 
 def drift_rows(verdict: Verdict) -> list[tuple[str, str, str]]:

@@ -34,7 +34,7 @@ def render_markdown(verdict: Verdict) -> str:
     if v.history is not None and v.history.changed:
         out += [f"> **The baseline {v.history.what} since `{v.history.ref}`**: {_cell(v.history.detail)}.", ""]
     out += [f"## {mark} rl-harness: gate {'passed' if v.passed else 'FAILED'} for `{v.manifest}`", "",
-            v.summary, "", f"- **baseline:** {v.provenance.baseline_label}",
+            v.tally, "", f"- **baseline:** {v.provenance.baseline_label}",
             f"- **candidate:** {v.provenance.candidate_label}"]
     if v.history is not None and not v.history.changed:
         out.append(f"- **baseline history:** {v.history.reading}")

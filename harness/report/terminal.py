@@ -42,7 +42,7 @@ class VerdictReport:
             parts.append(Text(v.history.headline, style="bold red"))
         headline = Text()
         headline.append("PASSED" if v.passed else "FAILED", style="bold green" if v.passed else "bold red")
-        headline.append(f"  {v.summary}")
+        headline.append(f"  {v.manifest}: {v.tally}")
         parts.append(headline)
         parts.append(Text(f"baseline:  {v.provenance.baseline_label}\ncandidate: {v.provenance.candidate_label}"))
         if v.history is not None and not v.history.changed:
@@ -60,7 +60,7 @@ class VerdictReport:
                               f"   candidate returns {list(v.exact.candidate_returns)}"))
         table = Table(title="3. statistical checks", title_justify="left", show_edge=False, pad_edge=False)
         for name in CHECK_HEADER:
-            table.add_column(name, overflow="fold", no_wrap=name in ("check", "margin", "p (Holm)", "verdict"))
+            table.add_column(name, overflow="fold", no_wrap=name in ("check", "margin", "p", "verdict"))
         for check, row in zip(v.checks, check_rows(v), strict=True):
             table.add_row(*row[:-1], Text(row[-1], style=_STYLE[check.verdict]))
         parts.append(table)
