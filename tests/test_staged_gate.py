@@ -101,7 +101,7 @@ def test_broken_trainer_stops_early_as_worse_and_a_rerun_reuses_its_seeds(at):
                     "out/broken.xml", "--json", "out/broken.json")
     assert code == ExitCode.GATE_FAILED, out
     assert "final crossed the 'worse' boundary at stage 1 of 2 (3 candidate seeds)" in out
-    assert "exact check skipped: the configuration differs" in out
+    assert "exact check (seeds trained): skipped: the configuration differs" in out
     report = json.loads((at / "out/broken.json").read_text())
     assert report["seeds"]["trained_now"] == 3 and report["seeds"]["saved"] == 3
     assert "final fails rule drop-beyond-margin (the drop is significantly larger than the margin) at stage 1" in out
