@@ -39,6 +39,9 @@ class _Manifest:
     def resolved_config(self) -> dict:
         return self.config
 
+    def baseline_manifest(self) -> _Manifest:
+        return self  # no [seeds] baseline_count: record trains the gate's seeds
+
 
 def _setup(n: int = 3, *, name: str = "toy", failed: int | None = None, grid_break: bool = False):
     seeds = plan_seeds(count=n, root=11)

@@ -25,7 +25,7 @@ from rich.console import Console
 from harness import stats
 from harness.store.baseline import SeedCurve
 from harness.gate.calibrate import calibrate_curves, plan_calibration, split_groups
-from harness.gate.calibration_set import calibration_manifest, calibration_seeds
+from harness.gate.calibration_set import calibration_manifest
 from harness.cli import ExitCode, main
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.gate.curveset import CurveSet
@@ -33,7 +33,7 @@ from harness.manifest.loader import parse_manifest
 from harness.gate.metrics import area_under_curve, final_return
 from harness.manifest.policy import GatePolicy
 from harness.report.calibration import CalibrationReport, render_calibration_markdown
-from harness.core.seeding import plan_seeds
+from harness.core.seeding import extend_seeds, plan_seeds
 
 STEPS = (0, 25, 50, 75, 100)
 
@@ -123,7 +123,7 @@ def test_calibration_seeds_extend_count_and_root():
 
 def test_calibration_seeds_extend_an_explicit_list():
     own = plan_seeds(seeds=[5, 2, 9])
-    seeds = calibration_seeds(own, 8)
+    seeds = extend_seeds(own, 8)
     assert seeds[:3] == own and len(set(seeds)) == 8
     assert all(s.spawn_key for s in seeds[3:])
 
@@ -294,7 +294,7 @@ def test_cli_failed_runs_exit_3(project):
     assert "seed 7/4" in out and "toy trainer broke on purpose" in out
 
 
-@pytest.mark.parametrize("module", ["harness.gate.calibrate", "harness.gate.calibration_set"])
+@pytest.mark.parametrize("module", ["harness.gate.calibrate", "harness.gate.fresh_sets"])
 def test_docstring_examples(module):
     result = doctest.testmod(importlib.import_module(module))
     assert result.attempted > 0 and result.failed == 0

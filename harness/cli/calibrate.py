@@ -60,6 +60,18 @@ def parse_targets(text: str | None, metrics: tuple[str, ...]) -> dict[str, float
     return out
 
 
+def _baseline(args: argparse.Namespace, manifest: Any) -> Any:
+    """The recorded baseline to verify fresh sets against: ``--baseline``, else the default file if it exists."""
+    from harness.store.baseline import default_baseline_path, read_baseline
+
+    if args.no_baseline:
+        return None
+    path = Path(args.baseline) if args.baseline else default_baseline_path(manifest.name, args.baselines)
+    if not args.baseline and not path.exists():
+        return None
+    return read_baseline(path, manifest_name=manifest.name)
+
+
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.gate.calibrate import plan_calibration, run_calibration
     from harness.manifest.loader import load_manifest
@@ -69,11 +81,12 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
 
     manifest = load_manifest(args.manifest)
     policy = policy_from_args(manifest.check, args)
+    baseline = _baseline(args, manifest)
     try:
         options = execution_options(args)
         targets = parse_targets(args.target_difference, policy.metrics)
         plan = plan_calibration(manifest, seeds=args.seeds, splits=args.splits, split_seed=args.split_seed,
-                                targets=targets, policy=policy)
+                                targets=targets, policy=policy, baseline=baseline)
     except HarnessError:
         raise
     except (ValueError, TypeError) as exc:
@@ -110,7 +123,9 @@ def register(subparsers: Any) -> None:
             "Train (or reuse) many seeds of MANIFEST's unchanged configuration, apply its gate to many random pairs "
             "of disjoint groups of the manifest's seed count (A/A comparisons) and report the gate's false-alarm "
             "rate against alpha, each metric's spread, the smallest difference the manifest's seeds detect, the "
-            "seeds needed for a target difference, and the metric with the best signal-to-noise. Results go to "
+            "seeds needed for a target difference, and the metric with the best signal-to-noise. With a recorded "
+            "baseline (baselines/<name>.json by default), also verify disjoint fresh seed sets against it, as verify "
+            "does, and say whether its means look like an unlucky draw. Results go to "
             "results/<name>-calibration/. Exit 0 done, 2 bad input, 3 runs failed."
         ),
     )
@@ -127,6 +142,12 @@ def register(subparsers: Any) -> None:
                        help="difference to detect, in the metric's units: one number for every metric, or "
                             "metric=number pairs (default: each metric's margin)")
     group.add_argument("--markdown", metavar="FILE", help="also write the report as Markdown")
+    group.add_argument("--baseline", metavar="FILE",
+                       help="recorded baseline to verify fresh seed sets against (default: <baselines>/<name>.json "
+                            "when it exists); the calibration seeds it does not hold are cut into disjoint sets of "
+                            "the manifest's seed count")
+    group.add_argument("--baselines", metavar="DIR", default="baselines", help="folder of baselines (default: baselines/)")
+    group.add_argument("--no-baseline", action="store_true", help="only the A/A splits: no recorded baseline")
     running = parser.add_argument_group("running")
     running.add_argument("--results", metavar="DIR", help="calibration results folder "
                          "(default: results/<manifest name>-calibration/)")

@@ -45,8 +45,8 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     check_overwrite(path, overwrite=args.overwrite)
     check_gate_policy(manifest)  # a baseline too small for its own checks is refused before any training
     start = time.perf_counter()
-    try:
-        results, folder = obtain_results(args, manifest, console)
+    try:  # the gate's seeds, or more with [seeds] baseline_count (results/<name>-baseline/)
+        results, folder = obtain_results(args, manifest.baseline_manifest(), console)
     except RunFailedError as exc:
         console.print(f"runs failed, no baseline written: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

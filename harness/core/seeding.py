@@ -18,6 +18,7 @@ too. The global ``np.random`` state is never touched.
 from __future__ import annotations
 
 import dataclasses
+import itertools
 from collections.abc import Sequence
 
 import numpy as np
@@ -32,6 +33,7 @@ __all__ = [
     "describe_seed_change",
     "episode_action_rng",
     "episode_seeds",
+    "extend_seeds",
     "plan_seeds",
     "run_streams",
     "validate_seed",
@@ -169,6 +171,32 @@ def describe_seed_change(old: Sequence[RunSeed], new: Sequence[RunSeed]) -> str:
         origin = f"{a} -> {b}"
     count = f"{len(old)} seeds" if len(old) == len(new) else f"{len(old)} -> {len(new)} seeds"
     return f"{origin}, {count}, {len(set(old) & set(new))} shared"
+
+
+def extend_seeds(own: Sequence[RunSeed], n_seeds: int) -> tuple[RunSeed, ...]:
+    """``own`` followed by spawned children of its first seed that it does not use, ``n_seeds`` in all.
+
+    For ``count = c`` and ``root = r`` this is exactly ``count = n_seeds, root = r``: the
+    ``c`` seeds are the first of the extended set, so every run of theirs is reused.
+    Calibration sets and baselines recorded with more seeds than a gate run
+    (``[seeds] baseline_count``) are extended this way.
+
+    Examples
+    --------
+    >>> [s.label for s in extend_seeds(plan_seeds(count=2, root=9), 4)]
+    ['9/0', '9/1', '9/2', '9/3']
+    >>> [s.label for s in extend_seeds(plan_seeds(seeds=[3, 5]), 4)]
+    ['3', '5', '3/0', '3/1']
+    """
+    own = tuple(own)
+    if not own:
+        raise ValueError("`own` must hold at least one seed, got none")
+    n = validate_seed(n_seeds, name="n_seeds")
+    if n < len(own):
+        raise ValueError(f"`n_seeds` must be at least the {len(own)} seeds given, got {n_seeds!r}")
+    taken = set(own)
+    extra = (s for s in (RunSeed(own[0].entropy, (i,)) for i in itertools.count()) if s not in taken)
+    return own + tuple(itertools.islice(extra, n - len(own)))
 
 
 def run_streams(seed: RunSeed) -> RunStreams:

@@ -17,7 +17,10 @@ groups come from the same configuration, so every failed gate is a false alarm
   Welch's t-test (:mod:`harness.stats.power`) at the gate's ``alpha``, power and
   sidedness (one-sided, as the gate tests "worse");
 * a recommendation: the metric whose minimum detectable difference is smallest
-  relative to its target difference.
+  relative to its target difference;
+* when a recorded baseline is given, the false-alarm rate of fresh seed sets
+  verified against that baseline itself, and whether the baseline's means look
+  like an unlucky draw (:mod:`harness.gate.fresh_sets`).
 
 The calibration set (which seeds, the derived manifest ``<name>-calibration``,
 which stored runs are reused) is :mod:`harness.gate.calibration_set`.
@@ -36,9 +39,10 @@ import numpy as np
 
 from harness import stats
 from harness.store.cache import RunCache
-from harness.gate.calibration_set import calibration_manifest, reuse_stored_runs
+from harness.gate.calibration_set import SEED_FACTOR, calibration_manifest, reuse_stored_runs
 from harness.gate.compare import compare_sets, metric_values
 from harness.gate.curveset import CurveSet
+from harness.gate.fresh_sets import FreshSetCheck, check_fresh_sets, check_pool_baseline
 from harness.gate.margins import GateScale, gate_scale
 from harness.manifest.policy import GatePolicy
 from harness.stats._validate import check_positive_int
@@ -160,6 +164,9 @@ class Calibration:
         Random-policy return and reward threshold the margins were sized from.
     sources
         How many runs were trained, taken from the cache, resumed or reused.
+    against_baseline
+        Fresh seed sets verified against the recorded baseline and the baseline's draw, or
+        ``None`` when no baseline was given.
     """
 
     manifest: str
@@ -176,6 +183,7 @@ class Calibration:
     floor: float | None
     threshold: float | None
     sources: Mapping[str, int] = dataclasses.field(default_factory=dict)
+    against_baseline: FreshSetCheck | None = None
 
     @property
     def reading(self) -> str:
@@ -281,6 +289,8 @@ def calibrate_curves(
     scale: GateScale | None = None,
     targets: Mapping[str, float] | None = None,
     sources: Mapping[str, int] | None = None,
+    baseline: CurveSet | None = None,
+    references: Sequence[Any] = (),
 ) -> Calibration:
     """A/A calibration of the gate on a set of curves of one unchanged configuration.
 
@@ -302,6 +312,11 @@ def calibrate_curves(
         Differences to detect per metric (default: each metric's margin).
     sources
         How the runs were obtained, for the report.
+    baseline, references
+        The recorded baseline and the manifest's published references: when a baseline is
+        given, the seeds of ``curves`` it does not hold are cut into disjoint fresh sets of
+        ``group_size`` and each is verified against it as ``verify`` does
+        (:func:`harness.gate.fresh_sets.check_fresh_sets`).
 
     Returns
     -------
@@ -356,6 +371,8 @@ def calibrate_curves(
         false_alarms=_split_rate(failed, m), called_worse=_split_rate(worse, m),
         metrics=tuple(noise), recommendation=_recommend(noise), floor=scale.floor, threshold=threshold,
         sources=dict(sources or {}),
+        against_baseline=None if baseline is None else check_fresh_sets(
+            baseline, curves, group_size=g, policy=policy, references=references, scale=scale),
     )
 
 
@@ -377,6 +394,8 @@ class CalibrationPlan:
         Differences to detect per metric (the margin for the others).
     scale
         Floor, threshold and margins, resolved before anything runs.
+    baseline
+        The recorded baseline the fresh sets are verified against, or ``None``.
     """
 
     manifest: Any
@@ -386,6 +405,7 @@ class CalibrationPlan:
     split_seed: int
     targets: Mapping[str, float]
     scale: GateScale
+    baseline: Any = None
 
 
 def plan_calibration(
@@ -396,6 +416,7 @@ def plan_calibration(
     split_seed: int = DEFAULT_SPLIT_SEED,
     targets: Mapping[str, float] | None = None,
     policy: GatePolicy | None = None,
+    baseline: Any = None,
 ) -> CalibrationPlan:
     """Check a calibration request before anything runs or is written.
 
@@ -404,11 +425,15 @@ def plan_calibration(
     manifest
         A ``harness.manifest.loader.Manifest``.
     seeds
-        Calibration seeds (default :data:`SEED_FACTOR` times the manifest's; at least twice).
+        Calibration seeds (default :data:`SEED_FACTOR` times the manifest's, plus the baseline's
+        seeds when a baseline is given; at least twice the manifest's).
     splits, split_seed, targets
         As :func:`calibrate_curves`.
     policy
         The gate policy; the manifest's ``[check]`` by default.
+    baseline
+        The manifest's recorded ``harness.store.baseline.Baseline`` to verify fresh seed sets
+        against, or ``None``.
 
     Raises
     ------
@@ -416,13 +441,19 @@ def plan_calibration(
         Too few seeds, a bad split count or seed, a target for a metric the gate does not
         check, or an invalid gate policy (a ``ConfigError`` naming the file and key,
         :func:`harness.gate.verify.check_gate_policy`).
+    BaselineError
+        The baseline belongs to another manifest, grid or configuration, or leaves no fresh set.
     """
     policy = policy or manifest.check
     scale = check_gate_policy(manifest, policy)
+    if seeds is None and baseline is not None:  # the baseline's seeds, then the default number of fresh ones
+        seeds = len(baseline.runs) + SEED_FACTOR * len(manifest.seeds)
     derived = calibration_manifest(manifest, seeds=seeds)
     goals = _targets_iv(targets, policy.metrics)
+    if baseline is not None:
+        check_pool_baseline(manifest, derived, baseline)
     return CalibrationPlan(manifest, derived, policy, check_positive_int(splits, "splits"),
-                           check_positive_int(split_seed, "split_seed", minimum=0), goals, scale)
+                           check_positive_int(split_seed, "split_seed", minimum=0), goals, scale, baseline)
 
 
 def run_calibration(
@@ -469,6 +500,7 @@ def run_calibration(
     tally["reused"] = reused
     curves = CurveSet.from_results(outcome.results, label=f"calibration results in {folder}",
                                    config=derived.resolved_config(), expected=len(derived.seeds))
+    base = None if plan.baseline is None else CurveSet.from_baseline(plan.baseline)
     return calibrate_curves(curves, group_size=len(manifest.seeds), policy=plan.policy, splits=plan.splits,
-                            split_seed=plan.split_seed, scale=plan.scale,
-                            targets=plan.targets, sources=tally)
+                            split_seed=plan.split_seed, scale=plan.scale, targets=plan.targets, sources=tally,
+                            baseline=base, references=manifest.references)

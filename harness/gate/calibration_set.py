@@ -2,7 +2,9 @@
 
 The calibration set starts with the manifest's own seeds, in order, followed by
 children of ``SeedSequence(entropy of the first seed)`` with spawn keys
-``(0,), (1,), ...`` that the manifest does not already use. For a manifest with
+``(0,), (1,), ...`` that the manifest does not already use
+(:func:`harness.core.seeding.extend_seeds`, which also extends a baseline recorded
+with ``[seeds] baseline_count``: that baseline's seeds are the calibration set's first). For a manifest with
 ``count = c`` and ``root = r`` this is exactly ``count = N, root = r``: the
 manifest's runs are the first ``c`` of the calibration's. The set is a derived
 manifest named ``<name>-calibration`` (its config hash covers its seed list), so
@@ -21,42 +23,20 @@ so reusing it gives the same bytes as training it.
 from __future__ import annotations
 
 import dataclasses
-import itertools
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 from harness.store.cache import RunCache
-from harness.core.seeding import RunSeed
+from harness.core.seeding import extend_seeds
 from harness.core.spec import canonical_json, sha256_of
-from harness.stats._validate import check_positive_int
 from harness.store.results import RunRecord, read_record, record_file_name, same_spec, write_record
 
-__all__ = ["SEED_FACTOR", "calibration_manifest", "calibration_seeds", "reuse_stored_runs"]
+__all__ = ["SEED_FACTOR", "calibration_manifest", "reuse_stored_runs"]
 
 #: Default calibration set: this many times the manifest's seed count.
 SEED_FACTOR = 4
-
-
-def calibration_seeds(own: Sequence[RunSeed], n_seeds: int) -> tuple[RunSeed, ...]:
-    """The manifest's seeds followed by spawned children of its first seed, ``n_seeds`` in all.
-
-    Examples
-    --------
-    >>> from harness.core.seeding import plan_seeds
-    >>> [s.label for s in calibration_seeds(plan_seeds(count=2, root=9), 4)]
-    ['9/0', '9/1', '9/2', '9/3']
-    >>> [s.label for s in calibration_seeds(plan_seeds(seeds=[3, 5]), 4)]
-    ['3', '5', '3/0', '3/1']
-    """
-    own = tuple(own)
-    if not own:
-        raise ValueError("`own` must hold the manifest's seeds, got none")
-    n = check_positive_int(n_seeds, "n_seeds", minimum=len(own))
-    taken = set(own)
-    extra = (s for s in (RunSeed(own[0].entropy, (i,)) for i in itertools.count()) if s not in taken)
-    return own + tuple(itertools.islice(extra, n - len(own)))
 
 
 def calibration_manifest(manifest: Any, *, seeds: int | None = None) -> Any:
@@ -83,7 +63,7 @@ def calibration_manifest(manifest: Any, *, seeds: int | None = None) -> Any:
     if isinstance(n, bool) or not isinstance(n, int) or n < 2 * own:
         raise ValueError(f"`seeds` must be an integer of at least {2 * own} (twice the manifest's {own} seeds, so "
                          f"that two disjoint groups fit), got {n!r}: ask for more seeds (default {SEED_FACTOR * own})")
-    planned = calibration_seeds(manifest.seeds, int(n))
+    planned = extend_seeds(manifest.seeds, int(n))
     derived = dataclasses.replace(manifest, name=f"{manifest.name}-calibration", seeds=planned, pins=None)
     return dataclasses.replace(derived, config_hash=sha256_of(derived.resolved_config()))
 

@@ -35,7 +35,7 @@ from harness.core import config
 from harness.core.errors import ConfigError, ManifestError, did_you_mean
 from harness.manifest.pins import Pins
 from harness.manifest.policy import GatePolicy, PublishedReference
-from harness.core.seeding import RunSeed, plan_seeds
+from harness.core.seeding import RunSeed, extend_seeds, plan_seeds
 from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
 from harness.trainers.command import COMMAND_TRAINER, CommandSettings, source_files
 from harness.trainers.registry import resolve_trainer
@@ -119,6 +119,7 @@ class _SeedsTable:
     count: int | None = None
     root: int | None = None
     values: tuple[int, ...] | None = None
+    baseline_count: int | None = None
 
     def __post_init__(self) -> None:
         if (self.values is None) == (self.count is None):
@@ -133,6 +134,13 @@ class _SeedsTable:
         except ValueError as exc:
             key = "values" if self.values is not None else ("root" if "root" in str(exc) else "count")
             raise ConfigError(f"{exc}; fix the seed list", key=key) from None
+        gate = self.count if self.values is None else len(self.values)
+        if self.baseline_count is not None and self.baseline_count < gate:
+            raise ConfigError(
+                f"must be at least the {gate} seeds of a gate run, got {self.baseline_count!r}: a baseline is "
+                f"recorded on the gate's seeds and more; raise it to {gate} or more, or remove it",
+                key="baseline_count",
+            )
 
     def planned(self) -> tuple[RunSeed, ...]:
         return plan_seeds(seeds=self.values, count=self.count, root=self.root)
@@ -190,6 +198,9 @@ class Manifest:
     time_limit
         ``[trainer] time_limit`` of a command trainer (seconds per seed), else ``None``; it
         does not enter the config hash.
+    baseline_count
+        Seeds ``record`` trains for the baseline (``[seeds] baseline_count``); ``None``: the
+        gate's seeds. See :meth:`baseline_manifest`.
     """
 
     path: Path | None
@@ -206,10 +217,28 @@ class Manifest:
     pins: Pins | None
     config_hash: str
     time_limit: float | None = None
+    baseline_count: int | None = None
 
     def resolved_config(self) -> dict[str, Any]:
         """The resolved training configuration: exactly what the config hash is taken of."""
         return _resolved_config(self.task, self.trainer, self.settings, self.budget, self.evaluation, self.seeds)
+
+    def baseline_manifest(self) -> Manifest:
+        """The manifest ``record`` trains: this one, or ``<name>-baseline`` with ``baseline_count`` seeds.
+
+        With ``[seeds] baseline_count = B`` larger than the gate's seed count, the baseline is
+        recorded on the gate's seeds followed by more children of the same root
+        (:func:`harness.core.seeding.extend_seeds`), so its mean carries less of one draw's
+        luck. The derived manifest has its own name (its results go to
+        ``results/<name>-baseline/``) and config hash (of its own seed list); the baseline
+        file stores this manifest's hash and configuration, so ``verify``'s exact check
+        compares the seeds both share (the gate's).
+        """
+        if self.baseline_count is None or self.baseline_count == len(self.seeds):
+            return self
+        derived = dataclasses.replace(self, name=f"{self.name}-baseline", seeds=extend_seeds(self.seeds, self.baseline_count),
+                                      pins=None, baseline_count=None)
+        return dataclasses.replace(derived, config_hash=sha256_of(derived.resolved_config()))
 
     def runs(self) -> tuple[RunSpec, ...]:
         """One :class:`~harness.core.spec.RunSpec` per seed, in manifest order."""
@@ -418,6 +447,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         pins=pins,
         config_hash=sha256_of(resolved),
         time_limit=table.trainer.time_limit,
+        baseline_count=table.seeds.baseline_count,
     )
 
 

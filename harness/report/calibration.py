@@ -67,6 +67,14 @@ def calibration_lines(cal: Calibration) -> dict[str, str]:
     if censored:
         lines["censored"] = ("; ".join(censored) + ": the gate compares them with Gehan's test, and the power figures, "
                              "which assume Welch's t-test on their censoring steps, are approximate.")
+    fresh = cal.against_baseline
+    if fresh is None:
+        lines["baseline"] = ("no recorded baseline was given, so the false alarms of fresh seeds against the baseline a "
+                             "team keeps are not measured (pass --baseline FILE).")
+    else:
+        lines["baseline"] = "against the baseline: " + fresh.reading
+        for d in fresh.draws:
+            lines[f"draw {d.metric}"] = "baseline draw, " + d.reading
     if p.strict:
         lines["strict"] = ("the policy is strict: an inconclusive check fails the gate, so its A/A failure rate is not "
                            "bounded by alpha; more seeds per group lower it.")
@@ -88,6 +96,10 @@ class CalibrationReport:
         parts.append(Text(lines["alarms"], style="green" if calibrated else "bold red"))
         parts.extend(Text(lines[k]) for k in ("worse", "strict") if k in lines)
         parts.append(Text(lines["interval"], style="dim"))
+        parts.append(Text(lines["baseline"], style="bold" if cal.against_baseline is not None else "dim"))
+        if cal.against_baseline is not None:
+            parts.extend(Text(lines[f"draw {d.metric}"], style="bold red" if d.unlucky else "")
+                         for d in cal.against_baseline.draws)
         table = Table(title="noise and power per metric", title_justify="left", box=box.SIMPLE_HEAD,
                       show_edge=False, pad_edge=False, collapse_padding=True)
         header, *rows = metric_rows(cal)
@@ -119,7 +131,9 @@ def render_calibration_markdown(calibration: Calibration) -> str:
     out = [f"## rl-harness calibration of `{cal.manifest}`", "", lines["headline"] + ".", "", f"- {lines['runs']}",
            f"- **{lines['alarms']}**"]
     out += [f"- {lines[k]}" for k in ("worse", "strict") if k in lines]
-    out += [f"- {lines['interval']}", "", "### Noise and power per metric", ""]
+    out += [f"- {lines['interval']}", f"- **{lines['baseline']}**"]
+    out += [f"- {lines[k]}" for k in lines if k.startswith("draw ")]
+    out += ["", "### Noise and power per metric", ""]
     header, *rows = metric_rows(cal)
     out += _table(header, rows)
     out += [lines["censored"], ""] if "censored" in lines else []

@@ -166,7 +166,11 @@ def baseline_from_results(
     manifest
         A ``harness.manifest.loader.Manifest``.
     results
-        A ``harness.store.results.ResultSet`` of that manifest.
+        A ``harness.store.results.ResultSet`` of the manifest ``record`` trains,
+        ``manifest.baseline_manifest()``: the manifest itself, or ``<name>-baseline`` with the
+        ``[seeds] baseline_count`` seeds. The baseline stores the manifest's own name, config
+        hash and configuration (of the gate's seeds, the first of the baseline's), so that
+        ``verify``'s exact check compares the seeds both share.
     recorded
         ISO date to store; the current UTC time by default.
     recording
@@ -182,23 +186,24 @@ def baseline_from_results(
         different installed versions.
     """
     where = f"results of {results.manifest!r}"
-    if results.config_hash != manifest.config_hash:
+    planned = manifest.baseline_manifest()
+    if results.config_hash != planned.config_hash:
         raise BaselineError(
-            f"{where} have config hash {results.config_hash}, but the manifest {manifest.name!r} has "
-            f"{manifest.config_hash}: rerun the manifest (`rlharness run`) before recording"
+            f"{where} have config hash {results.config_hash}, but the manifest {planned.name!r} has "
+            f"{planned.config_hash}: rerun the manifest (`rlharness run`) before recording"
         )
     failed = results.failed()
     if failed:
         labels = ", ".join(r.spec.seed.label for r in failed)
         raise BaselineError(f"{where}: seeds {labels} failed; a baseline needs every seed: fix the failures and rerun")
     done = {r.spec.seed: r for r in results.completed()}
-    missing = [s.label for s in manifest.seeds if s not in done]
+    missing = [s.label for s in planned.seeds if s not in done]
     if missing:
         raise BaselineError(
-            f"{where}: {len(missing)} of the manifest's {len(manifest.seeds)} seeds have no result "
+            f"{where}: {len(missing)} of the manifest's {len(planned.seeds)} seeds have no result "
             f"({', '.join(missing)}); run them first (`rlharness run`)"
         )
-    records = [done[s] for s in manifest.seeds]
+    records = [done[s] for s in planned.seeds]
     grids = {tuple(int(x) for x in r.curve.steps) for r in records}
     if len(grids) != 1:
         raise BaselineError(f"{where}: the seeds' curves have different checkpoint grids {sorted(grids)}")
