@@ -58,8 +58,10 @@ ROOT = Path(__file__).resolve().parents[1]
 
 #: Fresh sets per manifest (the issue: >= 40 for the tabular tasks, >= 10 for CartPole).
 SETS = {"frozenlake-q": 40, "taxi-q": 40, "cartpole-dqn": 10, "acrobot-dqn": 2, "mountaincar-dqn": 1}
-#: One setting per manifest that lowers the final return by about two margins (quick search, see the docstring).
-WEAKENED = {"frozenlake-q": ("step_size", 0.2), "taxi-q": ("step_size", 0.05)}
+#: One setting per manifest that lowers the final return by about two margins (quick search, see the docstring):
+#: the evaluation's exploration rate, so the greedy policy's returns drop by a controlled amount. (Taxi's
+#: step size is a cliff: 0.1 instead of 0.5 leaves the final return at -253 on 4 seeds, not a small drop.)
+WEAKENED = {"frozenlake-q": ("evaluation.epsilon", 0.03), "taxi-q": ("evaluation.epsilon", 0.016)}
 #: The rules compared: the default, then the rule before issue 10.
 RULES = ("drop-beyond-margin", "any-drop")
 
@@ -109,9 +111,10 @@ def _fresh(pool: CurveSet, base: CurveSet) -> CurveSet:
 
 
 def _weakened(manifest, key: str, value):
-    settings = dict(manifest.settings)
-    settings[key] = value
-    return dataclasses.replace(manifest, settings=settings)
+    """The manifest with one setting changed: a trainer setting, or ``evaluation.epsilon``."""
+    if key == "evaluation.epsilon":
+        return dataclasses.replace(manifest, evaluation=dataclasses.replace(manifest.evaluation, epsilon=value))
+    return dataclasses.replace(manifest, settings={**manifest.settings, key: value})
 
 
 def _limits(manifest):

@@ -181,6 +181,9 @@ def test_calibrate_verifies_fresh_sets_against_the_recorded_baseline(project):
     assert "against the recorded baseline (6 seeds)" in text and "of 2 fresh sets of 3 seeds" in text
     assert "baseline draw, final: baseline mean" in text and "z = " in text
     assert "fresh sets of 3 seeds failed the gate" in (project / "cal.md").read_text()
+    code, out = cli("calibrate", "toy.toml", "--splits", "50", "--workers", "2")  # default: 6 + 4 x 3 seeds
+    assert code == ExitCode.OK, out
+    assert "of 4 fresh sets of 3 seeds" in " ".join(out.split())
     code, out = cli("calibrate", "toy.toml", "--seeds", "8", "--splits", "50", "--workers", "2")
     assert code == ExitCode.BAD_INPUT, out
     assert "ask for at least 9 seeds (--seeds)" in " ".join(out.split())

@@ -132,7 +132,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
     group = parser.add_argument_group("calibration")
     group.add_argument("--seeds", type=int, metavar="N",
-                       help=f"seeds to train, at least twice the manifest's (default {SEED_FACTOR}x); the manifest's "
+                       help=f"seeds to train, at least twice the manifest's (default {SEED_FACTOR}x, plus the baseline's "
+                            "seeds when a baseline is used); the manifest's "
                             "own seeds are among them")
     group.add_argument("--splits", type=int, default=DEFAULT_SPLITS, metavar="M",
                        help=f"random A/A splits into two disjoint groups (default {DEFAULT_SPLITS})")
