@@ -12,14 +12,12 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
-from io import StringIO
 
 import numpy as np
 import pytest
-from rich.console import Console
 from scipy import stats
 
-from harness.cli import ExitCode, main
+from harness.cli import ExitCode
 from harness.core.curves import Checkpoint, LearningCurve
 from harness.core.errors import ManifestError
 from harness.core.seeding import plan_seeds
@@ -28,45 +26,31 @@ from harness.gate.fresh_sets import UNLUCKY_Z, check_fresh_sets, fresh_set_indic
 from harness.manifest.loader import parse_manifest
 from harness.manifest.policy import GatePolicy
 from harness.store.baseline import SeedCurve, read_baseline
+from test_calibrate import MANIFEST, cli  # the toy manifest; the CLI driven in-process
 
-MANIFEST = """\
-name = "toy"
-[task]
-id = "CartPole-v1"
-[trainer]
-use = "runner_toys:toy"
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-episode_seed = 1
-[seeds]
-count = 3
-root = 7
-{extra}
-[check]
-margin = 0.5
-"""
+
+def manifest_text(extra: str = "") -> str:
+    """test_calibrate's toy manifest (3 seeds of root 7, a fast synthetic trainer) with ``extra`` in [seeds]."""
+    return MANIFEST.format(seeds="count = 3\nroot = 7\n" + extra)
 
 
 # --- the key ------------------------------------------------------------------------------------
 
 def test_baseline_manifest_extends_the_gate_seeds_and_keeps_the_gate_hash():
-    plain = parse_manifest(MANIFEST.format(extra=""))
-    wide = parse_manifest(MANIFEST.format(extra="baseline_count = 8"))
+    plain = parse_manifest(manifest_text(""))
+    wide = parse_manifest(manifest_text("baseline_count = 8"))
     assert plain.baseline_manifest() is plain  # no key: record trains the gate's seeds
     assert wide.config_hash == plain.config_hash  # the gate run (verify) is unchanged by the key
     recorded = wide.baseline_manifest()
     assert recorded.seeds == plan_seeds(count=8, root=7)  # the gate's 3 seeds are the first 3
     assert recorded.seeds[:3] == wide.seeds
     assert recorded.name == "toy-baseline" and recorded.config_hash != wide.config_hash
-    assert parse_manifest(MANIFEST.format(extra="baseline_count = 3")).baseline_manifest().seeds == plain.seeds
+    assert parse_manifest(manifest_text("baseline_count = 3")).baseline_manifest().seeds == plain.seeds
 
 
 def test_baseline_count_below_the_gate_seeds_is_refused_naming_the_key():
     with pytest.raises(ManifestError, match=r"seeds\.baseline_count.*must be at least the 3 seeds of a gate run"):
-        parse_manifest(MANIFEST.format(extra="baseline_count = 2"), path="toy.toml")
+        parse_manifest(manifest_text("baseline_count = 2"), path="toy.toml")
 
 
 # --- fresh sets and the baseline's draw, on synthetic curves -------------------------------------
@@ -141,17 +125,11 @@ def test_no_fresh_set_is_a_clear_error():
 
 # --- end to end through the CLI -------------------------------------------------------------------
 
-def cli(*args: str) -> tuple[int, str]:
-    console = Console(file=StringIO(), width=200, color_system=None)
-    code = main([*args], console=console)
-    return code, console.file.getvalue()
-
-
 @pytest.fixture
 def project(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     monkeypatch.setenv("RLHARNESS_CACHE_DIR", str(tmp_path / "cache"))
-    (tmp_path / "toy.toml").write_text(MANIFEST.format(extra="baseline_count = 6"))
+    (tmp_path / "toy.toml").write_text(manifest_text("baseline_count = 6"))
     return tmp_path
 
 
@@ -194,7 +172,7 @@ def test_calibrate_verifies_fresh_sets_against_the_recorded_baseline(project):
 def test_calibrate_refuses_a_baseline_of_another_configuration(project):
     code, out = cli("record", "toy.toml", "--workers", "2")
     assert code == ExitCode.OK, out
-    (project / "other.toml").write_text(MANIFEST.format(extra="").replace("episodes = 3", "episodes = 4"))
+    (project / "other.toml").write_text(manifest_text("").replace("episodes = 3", "episodes = 4"))
     code, out = cli("calibrate", "other.toml", "--baseline", "baselines/toy.json", "--seeds", "12")
     assert code == ExitCode.BAD_INPUT, out
     assert "recorded with another configuration (evaluation differ)" in " ".join(out.split())
