@@ -26,7 +26,7 @@ cut to the gate's seed count (what the baseline would have been without ``[seeds
 baseline_count``).
 
 Stored runs are reused whenever a run of the same training (seed, configuration,
-budget, evaluation; whatever the pool's size) is in the pool folder, so a rerun takes
+budget, evaluation; whatever the pool's size or the run's index) is in the pool folder, so a rerun takes
 minutes; only missing seeds are trained (``--no-train``: none). Runs are reused whatever
 trainer source fingerprint they were recorded with (the table says which); that the
 numbers did not change is checked where pool and baseline share seeds (the baseline's
@@ -50,8 +50,9 @@ import numpy as np
 
 from harness import stats
 from harness.core.curves import LearningCurve
-from harness.execute.runner import run_specs
-from harness.gate.calibration_set import calibration_manifest, same_training
+from harness.core.spec import canonical_json, sha256_of
+from harness.execute.runner import run_manifest
+from harness.gate.calibration_set import calibration_manifest
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
 from harness.gate.fresh_sets import check_fresh_sets
@@ -92,15 +93,17 @@ def _pool_curves(manifest, n_seeds: int, folder: Path, *, train: bool, workers: 
             record = read_record(path) if path.is_file() else None
         except ValueError:
             record = None
-        if record is not None and record.ok and same_training(record.spec, spec):
+        if record is not None and record.ok and _same_run(record.spec, spec):
             found[spec.index] = SeedCurve(spec.seed, record.curve), record.versions
         elif spec.seed in recorded:
             found[spec.index] = recorded[spec.seed], baseline.versions
         else:
             missing.append(spec)
-    if missing and train:
+    if missing and train:  # the missing seeds as a manifest of their own, trained into the same folder
         print(f"  training {len(missing)} missing seeds of {derived.name} into {folder} ...", flush=True)
-        outcome = run_specs(missing, results_dir=folder, workers=workers, cache=RunCache(folder.parent / ".cache"))
+        rest = dataclasses.replace(derived, seeds=tuple(s.seed for s in missing))
+        rest = dataclasses.replace(rest, config_hash=sha256_of(rest.resolved_config()))
+        outcome = run_manifest(rest, results_dir=folder, workers=workers, cache=RunCache(folder.parent / ".cache"))
         index = {s.seed: s.index for s in specs}
         for record in outcome.results.records:
             if record.ok:
@@ -111,6 +114,17 @@ def _pool_curves(manifest, n_seeds: int, folder: Path, *, train: bool, workers: 
     curves = CurveSet(label, derived.name, derived.config_hash, derived.resolved_config(),
                       chosen[0][1] if chosen else {}, tuple(c for c, _ in chosen), derived.budget)
     return curves, sources
+
+
+def _same_run(a, b) -> bool:
+    """Whether two run specs train the same run: equal apart from the manifest's name, config hash and
+    the run's index in it (the built-in trainers read none of the three)."""
+    def training(spec) -> str:
+        data = spec.to_json()
+        del data["manifest"], data["config_hash"], data["index"]
+        return canonical_json(data)
+
+    return training(a) == training(b)
 
 
 def _fresh(pool: CurveSet, base: CurveSet) -> CurveSet:

@@ -33,7 +33,7 @@ from harness.core.seeding import extend_seeds
 from harness.core.spec import canonical_json, sha256_of
 from harness.store.results import RunRecord, read_record, record_file_name, same_spec, write_record
 
-__all__ = ["SEED_FACTOR", "calibration_manifest", "reuse_stored_runs", "same_training"]
+__all__ = ["SEED_FACTOR", "calibration_manifest", "reuse_stored_runs"]
 
 #: Default calibration set: this many times the manifest's seed count.
 SEED_FACTOR = 4
@@ -75,11 +75,6 @@ def _training(spec: Any) -> str:
     return canonical_json(data)
 
 
-def same_training(a: Any, b: Any) -> bool:
-    """Whether two run specs train the same thing (equal apart from the manifest's name and config hash)."""
-    return _training(a) == _training(b)
-
-
 def _stored(folder: Path, spec: Any, versions: Mapping[str, str], *, exact: bool = False) -> RunRecord | None:
     """The successful run of ``spec`` stored in ``folder`` and trained with ``versions``, or ``None``."""
     path = folder / record_file_name(spec)
@@ -89,7 +84,7 @@ def _stored(folder: Path, spec: Any, versions: Mapping[str, str], *, exact: bool
         return None
     if record is None or not record.ok or dict(record.versions) != dict(versions):
         return None
-    same = same_spec(record.spec, spec) if exact else same_training(record.spec, spec)
+    same = same_spec(record.spec, spec) if exact else _training(record.spec) == _training(spec)
     return record if same else None
 
 
