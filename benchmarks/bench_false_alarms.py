@@ -210,8 +210,11 @@ def main() -> int:
         policy = manifest.check
         pool, sources = _pool_curves(manifest, n_pool, pools / name, train=not args.no_train, workers=args.workers,
                                      baseline=baseline)
-        notes.append(f"{name}: {pool.label}; trainer source of pool runs {sorted(sources)}, of the baseline "
-                     f"{baseline.versions.get(TRAINER_SOURCE, '?')}; {_same_numbers(baseline, pool)}")
+        margins = ", ".join(f"{m} ±{policy.margin_for(m, floor=floor, threshold=threshold, budget=manifest.budget):.3g}"
+                            for m in policy.metrics)
+        notes.append(f"{name}: {pool.label}; margins {margins} (floor {floor}, threshold {threshold}); trainer source "
+                     f"of pool runs {sorted(sources)}, of the baseline {baseline.versions.get(TRAINER_SOURCE, '?')}; "
+                     f"{_same_numbers(baseline, pool)}")
         short = dataclasses.replace(base, runs=base.runs[:g])  # a baseline recorded without baseline_count
         kw = {"group_size": g, "references": manifest.references, "floor": floor, "threshold": threshold}
         wanted = sets.get(name, 10)
