@@ -31,7 +31,7 @@ def test_manifest_has_a_matching_baseline_and_pins(path):
         f"{path.name}: run `rlharness pin {path.relative_to(ROOT)}`"
     baseline = read_baseline(ROOT / "baselines" / f"{manifest.name}.json", manifest_name=manifest.name)
     assert baseline.config_hash == manifest.config_hash
-    assert [r.seed for r in baseline.runs] == list(manifest.seeds)
+    assert [r.seed for r in baseline.runs] == list(manifest.baseline_manifest().seeds)  # [seeds] baseline_count
     # The step limit filled in is gymnasium's registered one unless the manifest sets its own
     # (gymnasium's registry, read here).
     registered = gymnasium.spec(manifest.task.id).max_episode_steps
