@@ -237,6 +237,9 @@ def main() -> int:
                                   f"{(weak_final - fresh_final) / margin:+.2f} margins)", rule, f"{nb}",
                                   *(f"detected {f}" for f in found)])
         check = check_fresh_sets(base, pool, policy=policy, **kw)
+        tallies = "; ".join(f"{check_name}: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
+                            for check_name, counts in check.verdicts.items())
+        notes.append(f"{name}: verdicts over the {check.false_alarms.trials} disjoint fresh sets (default rule): {tallies}")
         for d in check.draws:
             pct = "-" if d.percentile is None else f"{d.percentile:.0f} (of {len(d.set_means)} sets of {nb})"
             draw_rows.append([name, d.metric, f"{d.baseline_mean:.4g}", f"{d.fresh_mean:.4g} ± {d.fresh_sd:.3g}",

@@ -96,6 +96,7 @@ def test_a_high_baseline_is_flagged_and_fails_every_fresh_set():
     check = check_fresh_sets(base, pool, group_size=10, policy=GatePolicy(margin=0.5, metrics=("final",)))
     assert check.false_alarms.count == check.false_alarms.trials == 4
     assert check.unlucky == ("final",) and check.draws[0].z > UNLUCKY_Z
+    assert check.verdicts == {"final": {"worse": 4}} and check.failing == {"final": 4}
     assert "the baseline is high, so unchanged reruns look worse" in check.draws[0].reading
     ci = stats.binomtest(4, 4).proportion_ci(method="exact")
     assert (check.false_alarms.interval.low, check.false_alarms.interval.high) == pytest.approx((ci.low, ci.high))

@@ -122,6 +122,9 @@ class FreshSetCheck:
         the sets are disjoint, so independent given the baseline).
     failing
         Per check name, in how many sets it failed the gate.
+    verdicts
+        Per check name, how often each verdict came out across the sets (an ``inconclusive``
+        check fails a ``strict`` gate).
     draws
         The baseline's draw per metric, in the policy's order.
     rule
@@ -134,6 +137,7 @@ class FreshSetCheck:
     group_size: int
     false_alarms: BinomialRate
     failing: Mapping[str, int]
+    verdicts: Mapping[str, Mapping[str, int]]
     draws: tuple[BaselineDraw, ...]
     rule: str | None = None
 
@@ -226,20 +230,24 @@ def check_fresh_sets(
     gate = dataclasses.replace(policy, locate=False)
     failed = 0
     failing: dict[str, int] = {}
+    verdicts: dict[str, dict[str, int]] = {}
     for indices in sets:
         candidate = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in indices))
         verdict = verify_sets(baseline, candidate, gate, references=references, floor=floor, threshold=threshold)
         failed += not verdict.passed
         for name in verdict.gate.failing:
             failing[name] = failing.get(name, 0) + 1
+        for c in verdict.checks:
+            tally = verdicts.setdefault(c.name, {})
+            tally[c.verdict] = tally.get(c.verdict, 0) + 1
     fresh = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in range(len(pool.runs)) if i not in set(taken)))
     limit = policy.threshold if policy.threshold is not None else threshold
     draws = tuple(
         _draw(m, metric_values(m, baseline, policy, limit).values, metric_values(m, fresh, policy, limit).values)
         for m in policy.metrics
     )
-    return FreshSetCheck(baseline.label, len(baseline.runs), g, BinomialRate.of(failed, len(sets)), failing, draws,
-                         getattr(policy, "rule", None))
+    return FreshSetCheck(baseline.label, len(baseline.runs), g, BinomialRate.of(failed, len(sets)), failing, verdicts,
+                         draws, getattr(policy, "rule", None))
 
 
 def check_pool_baseline(manifest: Any, derived: Any, baseline: Baseline) -> None:
