@@ -240,9 +240,13 @@ def main() -> int:
         tallies = "; ".join(f"{check_name}: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
                             for check_name, counts in check.verdicts.items())
         notes.append(f"{name}: verdicts over the {check.false_alarms.trials} disjoint fresh sets (default rule): {tallies}")
-        for d in check.draws:
-            pct = "-" if d.percentile is None else f"{d.percentile:.0f} (of {len(d.set_means)} sets of {nb})"
-            draw_rows.append([name, d.metric, f"{d.baseline_mean:.4g}", f"{d.fresh_mean:.4g} ± {d.fresh_sd:.3g}",
+        draws = list(check.draws)
+        if nb > g:  # also its first g seeds, among fresh sets of g
+            draws += check_fresh_sets(short, pool, policy=policy, **kw).draws
+        for d in draws:
+            pct = "-" if d.percentile is None else f"{d.percentile:.0f} (of {len(d.set_means)} sets of {d.baseline_seeds})"
+            draw_rows.append([name, d.metric, f"{d.baseline_mean:.4g} ({d.baseline_seeds} seeds)",
+                              f"{d.fresh_mean:.4g} ± {d.fresh_sd:.3g}",
                               f"{d.set_means[0]:.4g} to {d.set_means[-1]:.4g}" if d.set_means else "-",
                               f"{d.z:+.2f}", pct])
         fresh = _fresh(pool, base)
