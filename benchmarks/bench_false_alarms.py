@@ -54,7 +54,8 @@ from harness.core.spec import canonical_json, sha256_of
 from harness.execute.runner import run_manifest
 from harness.gate.calibration_set import calibration_manifest
 from harness.gate.compare import metric_values
-from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.gate.curveset import CurveSet
+from harness.gate.verify import check_gate_policy
 from harness.gate.fresh_sets import check_fresh_sets
 from harness.manifest.loader import load_manifest
 from harness.store.baseline import SeedCurve, read_baseline
@@ -142,15 +143,6 @@ def _weakened(manifest, key: str, value):
     return dataclasses.replace(manifest, settings={**manifest.settings, key: value})
 
 
-def _limits(manifest):
-    policy = manifest.check
-    threshold = policy.threshold if policy.threshold is not None else task_threshold(manifest.task)
-    floor = policy.floor
-    if floor is None and any(m not in policy.margins for m in policy.metrics) and policy.margin is None:
-        floor = random_policy_return(manifest.task, manifest.evaluation)
-    return floor, threshold
-
-
 def _rate(fa: BinomialRate) -> str:
     return f"{fa.count}/{fa.trials} = {fa.estimate:.3f} [{fa.interval.low:.3f}, {fa.interval.high:.3f}]"
 
@@ -208,17 +200,17 @@ def main() -> int:
         base = CurveSet.from_baseline(baseline)
         g, nb = len(manifest.seeds), len(baseline.runs)
         n_pool = nb + sets.get(name, 10) * g
-        floor, threshold = _limits(manifest)
         policy = manifest.check
+        scale = check_gate_policy(manifest, policy, baseline=baseline)  # floor, threshold, margins, as verify
+        threshold = scale.threshold
         pool, sources = _pool_curves(manifest, n_pool, pools / name, train=not args.no_train, workers=args.workers,
                                      baseline=baseline)
-        margins = ", ".join(f"{m} ±{policy.margin_for(m, floor=floor, threshold=threshold, budget=manifest.budget):.3g}"
-                            for m in policy.metrics)
-        notes.append(f"{name}: {pool.label}; margins {margins} (floor {floor}, threshold {threshold}); trainer source "
+        margins = ", ".join(m.text for m in scale.margins)
+        notes.append(f"{name}: {pool.label}; margins {margins} (floor {scale.floor}, threshold {threshold}); trainer source "
                      f"of pool runs {sorted(sources)}, of the baseline {baseline.versions.get(TRAINER_SOURCE, '?')}; "
                      f"{_same_numbers(baseline, pool)}")
         short = dataclasses.replace(base, runs=base.runs[:g])  # a baseline recorded without baseline_count
-        kw = {"group_size": g, "references": manifest.references, "floor": floor, "threshold": threshold}
+        kw = {"group_size": g, "references": manifest.references, "scale": scale}
         wanted = sets.get(name, 10)
         for rule in RULES:
             rp = dataclasses.replace(policy, rule=rule)
@@ -232,7 +224,7 @@ def main() -> int:
                                    workers=args.workers)
             fresh_final = np.mean(metric_values("final", _fresh(pool, base), policy, threshold).values)
             weak_final = np.mean(metric_values("final", _fresh(weak, base), policy, threshold).values)
-            margin = policy.margin_for("final", floor=floor, threshold=threshold, budget=manifest.budget)
+            margin = scale.margin("final")
             for rule in RULES:
                 found = _rates(base, weak, dataclasses.replace(policy, rule=rule), kw, wanted=wanted)
                 gate_rows.append([f"{name}, {key} = {value} (final {weak_final - fresh_final:+.3g} = "

@@ -41,6 +41,7 @@ from harness.core.errors import BaselineError
 from harness.core.spec import canonical_json
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet
+from harness.gate.margins import GateScale, gate_scale
 from harness.gate.verify import check_grid, verify_sets
 from harness.store.baseline import Baseline
 from harness.manifest.policy import GatePolicy, PublishedReference
@@ -193,8 +194,7 @@ def check_fresh_sets(
     group_size: int,
     policy: GatePolicy,
     references: Sequence[PublishedReference] = (),
-    floor: float | None = None,
-    threshold: float | None = None,
+    scale: GateScale | None = None,
 ) -> FreshSetCheck:
     """Verify disjoint fresh sets of ``pool`` against ``baseline`` and place the baseline's means among them.
 
@@ -207,9 +207,9 @@ def check_fresh_sets(
         order into sets of ``group_size``.
     group_size
         Seeds per fresh set: the gate's seed count (the manifest's ``[seeds]``).
-    policy, references, floor, threshold
+    policy, references, scale
         As ``verify`` applies them (``locate`` is turned off: where curves part does not enter
-        the gate).
+        the gate); ``scale`` (floor, threshold, margins) by default sized from the policy alone.
 
     Raises
     ------
@@ -228,12 +228,13 @@ def check_fresh_sets(
         raise ValueError(f"`pool` holds {len(pool.runs) - len(taken)} seeds besides the baseline's {len(own)}, fewer "
                          f"than one fresh set of {g}: train at least {len(own) + g} calibration seeds")
     gate = dataclasses.replace(policy, locate=False)
+    scale = scale or gate_scale(policy, budget=pool.budget, references=references)
     failed = 0
     failing: dict[str, int] = {}
     verdicts: dict[str, dict[str, int]] = {}
     for indices in sets:
         candidate = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in indices))
-        verdict = verify_sets(baseline, candidate, gate, references=references, floor=floor, threshold=threshold)
+        verdict = verify_sets(baseline, candidate, gate, references=references, scale=scale)
         failed += not verdict.passed
         for name in verdict.gate.failing:
             failing[name] = failing.get(name, 0) + 1
@@ -241,13 +242,13 @@ def check_fresh_sets(
             tally = verdicts.setdefault(c.name, {})
             tally[c.verdict] = tally.get(c.verdict, 0) + 1
     fresh = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in range(len(pool.runs)) if i not in set(taken)))
-    limit = policy.threshold if policy.threshold is not None else threshold
     draws = tuple(
-        _draw(m, metric_values(m, baseline, policy, limit).values, metric_values(m, fresh, policy, limit).values)
+        _draw(m, metric_values(m, baseline, policy, scale.threshold).values,
+              metric_values(m, fresh, policy, scale.threshold).values)
         for m in policy.metrics
     )
     return FreshSetCheck(baseline.label, len(baseline.runs), g, BinomialRate.of(failed, len(sets)), failing, verdicts,
-                         draws, getattr(policy, "rule", None))
+                         draws, policy.rule)
 
 
 def check_pool_baseline(manifest: Any, derived: Any, baseline: Baseline) -> None:
