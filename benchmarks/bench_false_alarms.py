@@ -56,7 +56,7 @@ from harness.gate.calibration_set import calibration_manifest
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet
 from harness.gate.verify import check_gate_policy
-from harness.gate.fresh_sets import check_fresh_sets
+from harness.gate.fresh_sets import baseline_draw, check_fresh_sets
 from harness.manifest.loader import load_manifest
 from harness.store.baseline import SeedCurve, read_baseline
 from harness.store.cache import RunCache
@@ -212,12 +212,18 @@ def main() -> int:
         short = dataclasses.replace(base, runs=base.runs[:g])  # a baseline recorded without baseline_count
         kw = {"group_size": g, "references": manifest.references, "scale": scale}
         wanted = sets.get(name, 10)
-        for rule in RULES:
+        fresh = _fresh(pool, base)
+        if len(fresh.runs) < g:  # not one fresh set yet: the baseline's draw and the pool's claims only
+            gate_rows.append([name, "-", f"{nb}", f"no fresh set: {len(fresh.runs)} fresh seeds, fewer than {g}", "-"])
+            rules = ()
+        else:
+            rules = RULES
+        for rule in rules:
             rp = dataclasses.replace(policy, rule=rule)
             gate_rows.append([name, rule, f"{nb}", *_rates(base, pool, rp, kw, wanted=wanted)])
             if nb > g:
                 gate_rows.append([name, rule, f"{g} (the baseline's first)", *_rates(short, pool, rp, kw, wanted=wanted)])
-        if name in WEAKENED:
+        if name in WEAKENED and rules:
             key, value = WEAKENED[name]
             weak_manifest = _weakened(manifest, key, value)
             weak, _ = _pool_curves(weak_manifest, n_pool, pools / f"{name}-{key}-{value}", train=not args.no_train,
@@ -230,20 +236,21 @@ def main() -> int:
                 gate_rows.append([f"{name}, {key} = {value} (final {weak_final - fresh_final:+.3g} = "
                                   f"{(weak_final - fresh_final) / margin:+.2f} margins)", rule, f"{nb}",
                                   *(f"detected {f}" for f in found)])
-        check = check_fresh_sets(base, pool, policy=policy, **kw)
-        tallies = "; ".join(f"{check_name}: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
-                            for check_name, counts in check.verdicts.items())
-        notes.append(f"{name}: verdicts over the {check.false_alarms.trials} disjoint fresh sets (default rule): {tallies}")
-        draws = list(check.draws)
-        if nb > g:  # also its first g seeds, among fresh sets of g
-            draws += check_fresh_sets(short, pool, policy=policy, **kw).draws
+        if rules:
+            check = check_fresh_sets(base, pool, policy=policy, **kw)
+            tallies = "; ".join(f"{check_name}: " + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
+                                for check_name, counts in check.verdicts.items())
+            notes.append(f"{name}: verdicts over the {check.false_alarms.trials} disjoint fresh sets (default rule): "
+                         f"{tallies}")
+        draws = [baseline_draw(m, metric_values(m, b, policy, threshold).values,
+                               metric_values(m, fresh, policy, threshold).values)
+                 for b in ((base, short) if nb > g else (base,)) for m in policy.metrics]
         for d in draws:
             pct = "-" if d.percentile is None else f"{d.percentile:.0f} (of {len(d.set_means)} sets of {d.baseline_seeds})"
             draw_rows.append([name, d.metric, f"{d.baseline_mean:.4g} ({d.baseline_seeds} seeds)",
                               f"{d.fresh_mean:.4g} ± {d.fresh_sd:.3g}",
                               f"{d.set_means[0]:.4g} to {d.set_means[-1]:.4g}" if d.set_means else "-",
                               f"{d.z:+.2f}", pct])
-        fresh = _fresh(pool, base)
         for metric in policy.metrics:
             values = metric_values(metric, fresh, policy, threshold).values
             lo, q05, q50, q95, hi = np.percentile(values, [0, 5, 50, 95, 100])

@@ -48,7 +48,10 @@ from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.stats._validate import check_positive_int
 from harness.stats.proportion import BinomialRate
 
-__all__ = ["UNLUCKY_Z", "BaselineDraw", "FreshSetCheck", "check_fresh_sets", "check_pool_baseline", "fresh_set_indices"]
+__all__ = [
+    "UNLUCKY_Z", "BaselineDraw", "FreshSetCheck", "baseline_draw", "check_fresh_sets", "check_pool_baseline",
+    "fresh_set_indices",
+]
 
 #: ``|z|`` above which the baseline's mean counts as an unlucky draw (see the module docstring).
 UNLUCKY_Z = 2.0
@@ -173,7 +176,8 @@ def fresh_set_indices(n_seeds: int, taken: Sequence[int], size: int) -> tuple[tu
     return tuple(tuple(free[j:j + k]) for j in range(0, len(free) - k + 1, k))
 
 
-def _draw(metric: str, base: np.ndarray, fresh: np.ndarray) -> BaselineDraw:
+def baseline_draw(metric: str, base: np.ndarray, fresh: np.ndarray) -> BaselineDraw:
+    """Where the mean of ``base`` (the baseline's values of ``metric``) sits among ``fresh`` values."""
     nb, nf = base.size, fresh.size
     mb, mf = float(np.mean(base)), float(np.mean(fresh))
     sd = float(np.std(fresh, ddof=1)) if nf > 1 else 0.0
@@ -243,7 +247,7 @@ def check_fresh_sets(
             tally[c.verdict] = tally.get(c.verdict, 0) + 1
     fresh = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in range(len(pool.runs)) if i not in set(taken)))
     draws = tuple(
-        _draw(m, metric_values(m, baseline, policy, scale.threshold).values,
+        baseline_draw(m, metric_values(m, baseline, policy, scale.threshold).values,
               metric_values(m, fresh, policy, scale.threshold).values)
         for m in policy.metrics
     )
