@@ -19,13 +19,13 @@ from scipy import stats
 
 from harness.cli import ExitCode
 from harness.core.curves import Checkpoint, LearningCurve
-from harness.core.errors import ManifestError
+from harness.core.errors import BaselineError, ManifestError
 from harness.core.seeding import plan_seeds
 from harness.gate.curveset import CurveSet
 from harness.gate.fresh_sets import UNLUCKY_Z, check_fresh_sets, fresh_set_indices
 from harness.manifest.loader import parse_manifest
 from harness.manifest.policy import GatePolicy
-from harness.store.baseline import SeedCurve, read_baseline
+from harness.store.baseline import SeedCurve, read_baseline, write_baseline
 from test_calibrate import MANIFEST, cli  # the toy manifest; the CLI driven in-process
 
 
@@ -185,3 +185,13 @@ def test_a_constant_pool_and_an_equal_baseline_give_z_zero():
     base = curves(np.full(10, 0.5), root=2, label="base")
     draw = check_fresh_sets(base, pool, group_size=10, policy=GatePolicy(margin=0.5, metrics=("final",))).draws[0]
     assert draw.z == 0.0 and math.isfinite(draw.z)
+
+
+def test_a_baseline_may_extend_its_config_seeds_only_as_baseline_count_does(project):
+    code, out = cli("record", "toy.toml", "--workers", "2")
+    assert code == ExitCode.OK, out
+    baseline = read_baseline(project / "baselines/toy.json")  # 3 gate seeds of root 7, then 7/3-7/5: accepted
+    stray = SeedCurve(plan_seeds(count=1, root=8)[0], baseline.runs[-1].curve)  # a seed of another root
+    write_baseline(dataclasses.replace(baseline, runs=(*baseline.runs[:-1], stray)), project / "stray.json")
+    with pytest.raises(BaselineError, match=r"\[runs\] holds 6 seeds .* but \[config.seeds\] plans 6 .* dropped, added"):
+        read_baseline(project / "stray.json")

@@ -29,7 +29,7 @@ from harness.core.atomic import atomic_write_text
 from harness.core.curves import LearningCurve
 from harness.core.errors import BaselineError
 from harness.core.jsondata import as_mapping, as_str, loads_strict
-from harness.core.seeding import RunSeed
+from harness.core.seeding import RunSeed, extend_seeds
 from harness.core.spec import sha256_of
 from harness.store.results import ResultSet
 
@@ -293,7 +293,8 @@ def _check_meaning(baseline: Baseline) -> None:
     """What a checksum cannot show (anyone can recompute it): the content must make sense.
 
     At least one run; no seed twice; the config hash is the hash of the stored config; the runs
-    are the config's seeds, in order (no run dropped without saying so); every curve on one grid.
+    are the config's seeds, in order, followed only by the seeds ``[seeds] baseline_count`` adds
+    (``harness.core.seeding.extend_seeds``; no run dropped without saying so); every curve on one grid.
     """
     if not baseline.runs:
         raise ValueError("[runs] is empty: a baseline holds at least one seed's curve")
@@ -306,6 +307,8 @@ def _check_meaning(baseline: Baseline) -> None:
     planned = baseline.config.get("seeds")
     if isinstance(planned, list):
         seeds = [RunSeed.from_json(s) for s in planned]
+        if seeds and len(baseline.runs) > len(seeds):  # [seeds] baseline_count: the gate's seeds, then more
+            seeds = list(extend_seeds(seeds, len(baseline.runs)))
         if seeds != [r.seed for r in baseline.runs]:
             raise ValueError(f"[runs] holds {len(baseline.runs)} seeds ({', '.join(labels[:5])}...), but [config.seeds] "
                              f"plans {len(seeds)} ({', '.join(s.label for s in seeds[:5])}...): a run was dropped, added "
