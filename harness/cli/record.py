@@ -35,11 +35,15 @@ def _program_commit(manifest: Any) -> str | None:
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.store.baseline import baseline_from_results, check_overwrite, default_baseline_path, write_baseline
+    from harness.cli.suite import is_suite, record_suite
+    from harness.store.baseline import check_overwrite, default_baseline_path
     from harness.gate.verify import check_gate_policy
     from harness.manifest.loader import load_manifest
     from harness.store.results import read_index
 
+    if is_suite(args.manifest):
+        return record_suite(args, console)
+    args.manifest = args.manifest[0]
     manifest = load_manifest(args.manifest)
     path = Path(args.output) if args.output else default_baseline_path(manifest.name, args.baselines)
     check_overwrite(path, overwrite=args.overwrite)
@@ -56,20 +60,28 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
         "workers": str(args.workers or os.cpu_count()),
         "runs": ", ".join(f"{n} {source}" for source, n in sorted(sources.items())),
     }
-    commit = _program_commit(manifest)
-    if commit is not None:  # information only: the trainer's fingerprint is its files' content
-        recording["program_git_commit"] = commit
+    store_baseline(args, manifest, results, path, recording, console, verify_hint=args.manifest)
+    return ExitCode.OK
+
+
+def store_baseline(args: argparse.Namespace, manifest: Any, results: Any, path: Path, recording: dict[str, str],
+                   console: Console, *, verify_hint: str) -> None:
+    """Write ``manifest``'s baseline from ``results`` with its recording notes (and the training
+    program's git commit, and who recorded it), and say so."""
+    from harness.store.baseline import baseline_from_results, write_baseline
     from harness.store.history import recorder_name
 
+    commit = _program_commit(manifest)
+    if commit is not None:  # information only: the trainer's fingerprint is its files' content
+        recording = {**recording, "program_git_commit": commit}
     baseline = baseline_from_results(manifest, results, recording=recording,
                                      recorder=args.recorder or recorder_name())
     written = write_baseline(baseline, path, overwrite=args.overwrite)
     console.print(
         f"recorded baseline {written}: {len(baseline.runs)} seeds, {manifest.config_hash}, checksum "
-        f"{baseline.checksum}. Commit it; `rlharness verify {args.manifest}` checks reruns against it.",
+        f"{baseline.checksum}. Commit it; `rlharness verify {verify_hint}` checks reruns against it.",
         highlight=False, soft_wrap=True,
     )
-    return ExitCode.OK
 
 
 def register(subparsers: Any) -> None:
@@ -77,7 +89,8 @@ def register(subparsers: Any) -> None:
         "record", help="run a manifest and store its baseline",
         description="Run MANIFEST (reusing results that match) and store its baseline under baselines/.",
     )
-    parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
+    parser.add_argument("manifest", metavar="MANIFEST", nargs="+",
+                        help="the manifest (TOML); or several, a folder of them, or a suite file (one worker pool)")
     parser.add_argument("--output", metavar="FILE", help="baseline file (default: <baselines>/<name>.json)")
     parser.add_argument("--overwrite", action="store_true", help="replace an existing baseline")
     parser.add_argument("--recorder", metavar="NAME",

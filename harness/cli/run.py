@@ -22,11 +22,14 @@ __all__ = ["register"]
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.gate.verify import check_gate_policy
+    from harness.cli.suite import is_suite, run_suite_command
     from harness.manifest.loader import load_manifest
     from harness.report.progress import RunProgress, RunSummary
     from harness.execute.runner import run_manifest
 
-    manifest = load_manifest(args.manifest)
+    if is_suite(args.manifest):
+        return run_suite_command(args, console)
+    manifest = load_manifest(args.manifest[0])
     check_gate_policy(manifest)  # a gate that could never decide is refused before any training
     options = execution_options(args)
     try:
@@ -51,7 +54,9 @@ def register(subparsers: Any) -> None:
         "showing live progress, and store one result file per seed plus an index. Seeds already in the "
         "results folder or in the run cache are not trained again.",
     )
-    parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
-    parser.add_argument("--results", metavar="DIR", help="results folder (default: results/<manifest name>/)")
+    parser.add_argument("manifest", metavar="MANIFEST", nargs="+",
+                        help="the manifest (TOML); or several, a folder of them, or a suite file (one worker pool)")
+    parser.add_argument("--results", metavar="DIR",
+                        help="results folder (default: results/<manifest name>/; for a suite, DIR/<manifest name>/)")
     add_execution_arguments(parser)
     parser.set_defaults(handler=_handle)

@@ -30,7 +30,8 @@ __all__ = ["add_policy_arguments", "add_report_arguments", "add_run_arguments", 
 def add_run_arguments(parser: argparse.ArgumentParser) -> None:
     """Options that say where results come from: run (cached and resumed) or read stored ones."""
     group = parser.add_argument_group("running")
-    group.add_argument("--results", metavar="DIR", help="results folder (default: results/<manifest name>/)")
+    group.add_argument("--results", metavar="DIR",
+                       help="results folder (default: results/<manifest name>/; for a suite, DIR/<manifest name>/)")
     group.add_argument("--no-run", action="store_true",
                        help="use the results already stored in the results folder; train nothing")
     group.add_argument("--fresh", action="store_true",
@@ -114,7 +115,8 @@ def add_report_arguments(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--markdown", metavar="FILE", help="write the Markdown report (CI summary, PR comment)")
     group.add_argument("--json", metavar="FILE", help="write the JSON report (versioned schema)")
     group.add_argument("--junit", metavar="FILE", help="write a JUnit XML report (one test case per check)")
-    group.add_argument("--plot", metavar="FILE", help="write a plot of both sets of curves (.png or .svg)")
+    group.add_argument("--plot", metavar="FILE",
+                       help="write a plot of both sets of curves (.png or .svg); for a suite, the performance profiles")
 
 
 def _check_report_paths(args: argparse.Namespace) -> None:
@@ -152,6 +154,7 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.cli.suite import is_suite, verify_suite_command
     from harness.store.baseline import default_baseline_path
     from harness.manifest.loader import load_manifest
     from harness.gate.verify import baseline_for, check_baseline_seeds, check_gate_policy, verify_manifest
@@ -161,6 +164,9 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     except ValueError as exc:
         console.print(f"error: {exc}", highlight=False)
         return ExitCode.BAD_INPUT
+    if is_suite(args.manifest):
+        return verify_suite_command(args, console, policy_from_args)
+    args.manifest = args.manifest[0]
     manifest = load_manifest(args.manifest)
     policy = stage_policy(policy_from_args(manifest.check, args), args)
     scale = check_gate_policy(manifest, policy)  # before anything runs
@@ -190,14 +196,19 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
 
 def register(subparsers: Any) -> None:
     parser = subparsers.add_parser(
-        "verify", help="rerun a manifest and verify it against its baseline",
+        "verify", help="rerun a manifest (or a suite of them) and verify it against its baseline",
         description=(
             "Rerun MANIFEST (reusing results that match) and verify it against its baseline: provenance, exact "
-            "check, statistical checks, where the curves part, and the gate. Exit 0 gate passed, 1 gate failed, "
-            "2 bad input, 3 runs failed."
+            "check, statistical checks, where the curves part, and the gate. Several manifests, a folder of them "
+            "or a suite file make a suite: all runs in one pool, every check of every task in one Holm family, "
+            "one verdict and an aggregate across tasks. Exit 0 gate passed, 1 gate failed, 2 bad input, "
+            "3 runs failed."
         ),
     )
-    parser.add_argument("manifest", metavar="MANIFEST", help="the manifest (TOML)")
+    parser.add_argument("manifest", metavar="MANIFEST", nargs="+",
+                        help="the manifest (TOML); or several, a folder of them, or a suite file")
+    parser.add_argument("--details", action="store_true",
+                        help="suite: print every task's full report, not only its line")
     parser.add_argument("--baseline", metavar="FILE", help="the baseline file (default: <baselines>/<name>.json)")
     parser.add_argument("--baseline-ref", metavar="REF",
                         help="git ref (branch, tag, commit; in a pull request the merge base) to compare the baseline "

@@ -52,7 +52,7 @@ the whole curve.
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 import numpy as np
 
@@ -64,10 +64,16 @@ from harness.gate.metrics import METRICS
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.stats import DROP_RULES, ConfidenceInterval
 
-__all__ = ["VERDICTS", "Divergence", "GateDecision", "MetricCheck", "StatisticalComparison", "compare_sets",
-           "decide", "divergence_seeds_needed"]
+__all__ = ["VERDICTS", "Divergence", "Family", "GateDecision", "MetricCheck", "StatisticalComparison",
+           "compare_sets", "decide", "divergence_seeds_needed"]
 
 VERDICTS = ("equivalent", "worse", "better", "inconclusive")
+
+#: How one comparison's p-values are adjusted: ``family(kind, raw_pvalues)`` with ``kind``
+#: ``"p_worse"``, ``"p_better"`` or ``"p_beyond"`` returns the adjusted values in the same order.
+#: The default is Holm over this comparison's checks; a suite passes one that adjusts over
+#: every check of every task (:mod:`harness.gate.suite`).
+Family = Callable[[str, Sequence[float]], stats.AdjustedPValues]
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -426,6 +432,7 @@ def compare_sets(
     *,
     references: Sequence[PublishedReference] = (),
     scale: GateScale | None = None,
+    family: Family | None = None,
 ) -> StatisticalComparison:
     """Run every statistical check of ``candidate`` against ``baseline`` and ``references``, and the gate.
 
@@ -442,6 +449,9 @@ def compare_sets(
     scale
         The floor, threshold and margins (:func:`harness.gate.margins.task_scale`); by default
         sized from the policy alone (its ``floor``, ``threshold`` and margins).
+    family
+        Adjusts each kind of raw one-sided p-value (``"p_worse"``, ``"p_better"``,
+        ``"p_beyond"``) over the checks; ``None``: Holm over these checks at ``policy.alpha``.
 
     Raises
     ------
@@ -484,8 +494,10 @@ def compare_sets(
                    scale.margin(metric), policy.alpha, len(plan))
         for name, metric, against, ref in plan
     ]
-    holm = [stats.holm([getattr(r, key) for r in raws], alpha=policy.alpha)
-            for key in ("p_worse", "p_better", "p_beyond")]
+    if family is None:
+        def family(kind: str, pvalues: Sequence[float]) -> stats.AdjustedPValues:
+            return stats.holm(pvalues, alpha=policy.alpha)
+    holm = [family(key, [getattr(r, key) for r in raws]) for key in ("p_worse", "p_better", "p_beyond")]
     checks = tuple(
         _finish(raw, tuple(float(h.adjusted[i]) for h in holm), tuple(bool(h.reject[i]) for h in holm), policy)
         for i, raw in enumerate(raws)

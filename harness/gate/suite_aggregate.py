@@ -35,9 +35,9 @@ from collections.abc import Sequence
 import numpy as np
 
 from harness import stats
-from harness.core.errors import TooFewSeedsWarning
+from harness.core.errors import ResultsError, TooFewSeedsWarning
 from harness.gate.compare import metric_values
-from harness.gate.curveset import CurveSet, random_policy_return, task_threshold
+from harness.gate.curveset import CurveSet, random_policy_return
 from harness.gate.verify import Verdict
 
 __all__ = ["SuiteAggregate", "TaskScores", "normalised_scores", "suite_aggregate"]
@@ -114,14 +114,16 @@ def normalised_scores(curve_set: CurveSet, policy: object, *, floor: float, thre
 
 
 def _span(manifest: object, verdict: Verdict) -> tuple[float, float] | str:
-    """The task's (floor, threshold), or why there is none."""
-    policy = verdict.policy
-    threshold = policy.threshold if policy.threshold is not None else task_threshold(manifest.task)
+    """The task's (floor, threshold) as its gate resolved them (:mod:`harness.gate.margins`), or why there is none."""
+    threshold = verdict.threshold
     if threshold is None:
         return "no reward threshold: set `threshold` in [check]"
-    floor = policy.floor if policy.floor is not None else verdict.floor
-    if floor is None:
-        floor = random_policy_return(manifest.task, manifest.evaluation)
+    floor = verdict.floor
+    if floor is None:  # the margins did not need it: measure it as they would have
+        try:
+            floor = random_policy_return(manifest.task, manifest.evaluation)
+        except ResultsError:
+            return "no random-policy return to measure (not a gymnasium task): set `floor` in [check]"
     if floor == threshold:
         return f"the threshold equals the random policy's return ({floor:g})"
     return float(floor), float(threshold)

@@ -36,7 +36,7 @@ import numpy as np
 from harness import stats
 from harness.core.errors import BaselineError, ConfigError, ResultsError
 from harness.core.spec import TaskSpec, config_changes
-from harness.gate.compare import Divergence, GateDecision, MetricCheck, compare_sets, divergence_seeds_needed
+from harness.gate.compare import Divergence, Family, GateDecision, MetricCheck, compare_sets, divergence_seeds_needed
 from harness.gate.curveset import CurveSet, task_from_data
 from harness.gate.margins import GateScale, task_scale
 from harness.manifest.policy import GatePolicy, PublishedReference
@@ -298,14 +298,16 @@ def verify_sets(
     *,
     references: Sequence[PublishedReference] = (),
     scale: GateScale | None = None,
+    family: Family | None = None,
 ) -> Verdict:
     """Every verification layer for two curve sets (or one and published references).
 
-    ``scale`` (floor, threshold, margins) as in :func:`harness.gate.compare.compare_sets`.
+    ``scale`` (floor, threshold, margins) and ``family`` (how p-values are adjusted) as in
+    :func:`harness.gate.compare.compare_sets`.
     """
     prov = provenance(baseline, candidate)
     exact = exact_check(baseline, candidate, prov, policy)
-    stats = compare_sets(baseline, candidate, policy, references=references, scale=scale)
+    stats = compare_sets(baseline, candidate, policy, references=references, scale=scale, family=family)
     return Verdict(
         manifest=candidate.manifest, provenance=prov, exact=exact, checks=stats.checks,
         divergence=stats.divergence, gate=with_exact(stats.gate, exact, policy), policy=policy, scale=stats.scale,
@@ -411,6 +413,7 @@ def verify_manifest(
     candidate_label: str | None = None,
     history: BaselineHistory | None = None,
     scale: GateScale | None = None,
+    family: Family | None = None,
 ) -> Verdict:
     """Verify a manifest's results against its baseline and its published references.
 
@@ -431,6 +434,9 @@ def verify_manifest(
         (:func:`harness.store.history.baseline_history`); reports show a change first.
     scale
         The floor, threshold and margins if already resolved (:func:`check_gate_policy`).
+    family
+        Adjusts the checks' p-values; ``None``: Holm over this manifest's checks
+        (a suite adjusts over every task's checks, :mod:`harness.gate.suite`).
 
     Raises
     ------
@@ -458,7 +464,7 @@ def verify_manifest(
         scale = task_scale(policy, task=manifest.task, evaluation=manifest.evaluation, budget=manifest.budget,
                            references=references, path=None if manifest.path is None else str(manifest.path))
     verdict = verify_sets(None if baseline is None else CurveSet.from_baseline(baseline), candidate, policy,
-                          references=references, scale=scale)
+                          references=references, scale=scale, family=family)
     return verdict if history is None else dataclasses.replace(verdict, history=history)
 
 

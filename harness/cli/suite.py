@@ -1,0 +1,206 @@
+"""``run``, ``record`` and ``verify`` over a suite: several manifests, a folder of them, or a suite file.
+
+One manifest file keeps the single-manifest commands exactly as they were; anything
+else goes through here. Every manifest and baseline is checked before anything
+trains; all runs of all tasks share one worker pool (longest first) with one live
+progress display; each task's results go to ``<results>/<manifest name>/`` and are
+cached and resumed per seed as for one manifest.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import tempfile
+import time
+from collections import Counter
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from harness.cli import ExitCode
+from harness.cli._options import execution_options
+from harness.core.errors import HarnessError, RunFailedError
+
+__all__ = ["is_suite", "record_suite", "run_suite_command", "verify_suite_command"]
+
+
+def is_suite(items: Sequence[str]) -> bool:
+    """True unless ``items`` is a single manifest file (which keeps the single-manifest command)."""
+    from harness.manifest.suite import is_suite_file
+
+    return len(items) != 1 or Path(items[0]).is_dir() or is_suite_file(items[0])
+
+
+def _refuse(args: argparse.Namespace, *options: str) -> None:
+    for option in options:
+        if getattr(args, option.lstrip("-").replace("-", "_"), None):
+            raise HarnessError(f"{option} names one file, so it works with one manifest only; with a suite, "
+                               "files go by manifest name (<baselines>/<name>.json)")
+
+
+def _folders(args: argparse.Namespace, suite: Any) -> list[Path]:
+    root = Path(getattr(args, "results", None) or "results")
+    if getattr(args, "fresh", False):
+        root.mkdir(parents=True, exist_ok=True)
+        root = Path(tempfile.mkdtemp(prefix=f"{suite.name}-fresh-", dir=root))
+    return [root / m.name for m in suite.manifests]
+
+
+def _train(args: argparse.Namespace, suite: Any, folders: Sequence[Path], baselines: dict, console: Console,
+           **extra: Any) -> tuple[Any, ...]:
+    """Every run of every task in one pool, with one progress display."""
+    from harness.execute.suite import run_suite
+    from harness.report.progress import SuiteProgress
+
+    options = execution_options(args)
+    if getattr(args, "fresh", False):
+        options["use_cache"] = False
+    seeds = sum(len(m.seeds) for m in suite.manifests)
+    console.print(f"running {seeds} seeds of {len(suite.manifests)} tasks ({', '.join(m.name for m in suite.manifests)}) "
+                  f"in one pool; results in {folders[0].parent}/<task>/ ...", highlight=False, soft_wrap=True)
+    try:
+        with SuiteProgress(console) as progress:  # draws nothing when the console is not a terminal
+            return run_suite(suite.manifests, folders, baselines, on_event=progress, **options, **extra)
+    except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
+        raise HarnessError(f"cannot run suite {suite.name}: {exc}") from None
+
+
+def _failures(outcomes: Sequence[Any]) -> str | None:
+    from harness.gate.curveset import last_line
+
+    lines = [f"  {o.results.manifest} seed {r.spec.seed.label}: {last_line(r.failure)}"
+             for o in outcomes for r in o.results.failed()]
+    if not lines:
+        return None
+    total = sum(len(o.results.records) for o in outcomes)
+    return f"{len(lines)} of {total} runs failed:\n" + "\n".join(lines)
+
+
+def _results(args: argparse.Namespace, suite: Any, baselines: dict, console: Console) -> tuple[list[Any], list[Path]]:
+    """Each task's result set: read (``--no-run``) or trained in one pool. Raises RunFailedError."""
+    from harness.store.results import read_results
+
+    folders = _folders(args, suite)
+    if args.no_run:
+        return [read_results(f) for f in folders], folders
+    outcomes = _train(args, suite, folders, baselines, console)
+    failed = _failures(outcomes)
+    if failed:
+        raise RunFailedError(failed)
+    sources = Counter(s for o in outcomes for s in o.sources.values())
+    console.print("runs: " + ", ".join(f"{sources[s]} {s}" for s in ("trained", "cache", "resumed") if sources[s]),
+                  highlight=False)
+    return [o.results for o in outcomes], folders
+
+
+def run_suite_command(args: argparse.Namespace, console: Console) -> ExitCode:
+    """``rlharness run`` over a suite: train, then one summary table per task."""
+    from harness.manifest.suite import load_suite
+    from harness.report.progress import RunSummary
+    from harness.store.baseline import default_baseline_path, read_baseline
+
+    from harness.gate.verify import check_gate_policy
+
+    suite = load_suite(args.manifest)
+    for m in suite.manifests:  # a gate that could never decide is refused before any training
+        check_gate_policy(m)
+    baselines = {}
+    for m in suite.manifests:  # only to order the runs by their recorded cost; a bad baseline is not an error here
+        path = default_baseline_path(m.name)
+        try:
+            baselines[m.name] = read_baseline(path, manifest_name=m.name) if path.exists() else None
+        except HarnessError:
+            baselines[m.name] = None
+    outcomes = _train(args, suite, _folders(args, suite), baselines, console, time_limit=args.time_limit)
+    for outcome in outcomes:
+        console.print(RunSummary(outcome))
+    return ExitCode.OK if all(o.ok for o in outcomes) else ExitCode.RUNS_FAILED
+
+
+def record_suite(args: argparse.Namespace, console: Console) -> ExitCode:
+    """``rlharness record`` over a suite: one pool, then one baseline per task; none if any run failed."""
+    from harness.cli.record import store_baseline
+    from harness.gate.verify import check_gate_policy
+    from harness.manifest.suite import load_suite
+    from harness.store.baseline import check_overwrite, default_baseline_path
+
+    _refuse(args, "--output")
+    suite = load_suite(args.manifest)
+    paths = [default_baseline_path(m.name, args.baselines) for m in suite.manifests]
+    for manifest, path in zip(suite.manifests, paths, strict=True):  # refused before any training
+        check_overwrite(path, overwrite=args.overwrite)
+        check_gate_policy(manifest)
+    start = time.perf_counter()
+    try:
+        results, _ = _results(args, suite, dict.fromkeys(m.name for m in suite.manifests), console)
+    except RunFailedError as exc:
+        console.print(f"runs failed, no baseline written: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    recording = {"wall_seconds": f"{time.perf_counter() - start:.1f}", "workers": str(args.workers or os.cpu_count()),
+                 "suite": f"{suite.name} ({len(suite.manifests)} tasks in one pool: the wall time is the suite's)"}
+    for manifest, result, path in zip(suite.manifests, results, paths, strict=True):
+        store_baseline(args, manifest, result, path, recording, console, verify_hint=" ".join(args.manifest))
+    return ExitCode.OK
+
+
+def verify_suite_command(args: argparse.Namespace, console: Console,
+                         policy_from_args: Callable[[Any, argparse.Namespace], Any]) -> ExitCode:
+    """``rlharness verify`` over a suite: one family of checks, one verdict, one exit code."""
+    from harness.gate.suite import SuiteMember, verify_suite
+    from harness.gate.verify import baseline_for, check_gate_policy
+    from harness.manifest.suite import load_suite
+    from harness.store.baseline import default_baseline_path
+
+    _refuse(args, "--baseline")
+    suite = load_suite(args.manifest, alpha=args.alpha)
+    policies = [policy_from_args(m.check, args).with_overrides(alpha=suite.alpha) for m in suite.manifests]
+    baselines, histories, scales = {}, {}, {}
+    for m in suite.manifests:  # every baseline is checked before anything trains
+        path = default_baseline_path(m.name, args.baselines)
+        if args.baseline_ref:
+            from harness.store.history import baseline_history
+
+            histories[m.name] = baseline_history(path, args.baseline_ref)
+        baselines[m.name] = baseline_for(m, path)
+        if baselines[m.name] is None:
+            console.print(f"{m.name}: no baseline at {path}: checking against its published references only",
+                          highlight=False)
+    for m, policy in zip(suite.manifests, policies, strict=True):  # a gate that could never decide: refused now
+        scales[m.name] = check_gate_policy(m, policy, baseline=baselines[m.name])
+    try:
+        results, folders = _results(args, suite, baselines, console)
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
+    members = [SuiteMember(m, r, baselines[m.name], p, f"rerun of {m.name} (results in {f})", histories.get(m.name),
+                           scales[m.name])
+               for m, r, p, f in zip(suite.manifests, results, policies, folders, strict=True)]
+    verdict = verify_suite(suite.name, suite.alpha, members)
+    return _finish(verdict, args, console)
+
+
+def _finish(verdict: Any, args: argparse.Namespace, console: Console) -> ExitCode:
+    from harness.core.atomic import atomic_write_text
+    from harness.report.plot import PlotUnavailableError, plot_profiles
+    from harness.report.suite import SuiteReport, render_suite_junit, render_suite_markdown, suite_text
+
+    console.print(SuiteReport(verdict, details=args.details))
+    writers = [(args.markdown, render_suite_markdown), (args.json, suite_text), (args.junit, render_suite_junit)]
+    for target, render in writers:
+        if target:
+            path = Path(target)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            atomic_write_text(path, render(verdict))
+            console.print(f"wrote {path}", highlight=False)
+    if args.plot:
+        if verdict.aggregate is None:
+            console.print("plot skipped: no task has both a baseline and a score span to plot", highlight=False)
+        else:
+            try:
+                console.print(f"wrote {plot_profiles(verdict.aggregate, args.plot)}", highlight=False)
+            except PlotUnavailableError as exc:
+                console.print(f"plot skipped: {exc}", highlight=False)
+    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED
