@@ -112,7 +112,7 @@ def test_broken_task_fails_the_suite_alone(at):
     (at / "broken/broken_rule.py").write_text(BROKEN_RULE)
     code, out = cli(at, "verify", "broken", "--workers", "2", "--results", "results-broken", "--json", "out/b.json")
     assert code == ExitCode.GATE_FAILED, out
-    assert "failing: lake-b" in out and "lake-b: gate: final is significantly worse" in out
+    assert "failing: lake-b" in out and "lake-b: gate: final fails rule drop-beyond-margin" in out
     report = json.loads((at / "out/b.json").read_text())
     assert report["failing"] == ["lake-b"]
     # One family (Holm 1979): the smallest p-value is multiplied by the number of checks, 4 in

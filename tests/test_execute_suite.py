@@ -23,6 +23,8 @@ def test_run_cost_comes_from_the_recorded_wall_time():
         float(rec["wall_seconds"]) * int(rec["workers"]) / len(baseline.runs))
     assert recorded_run_seconds(dataclasses.replace(baseline, recording={})) is None
     assert recorded_run_seconds(dataclasses.replace(baseline, recording={"wall_seconds": "x", "workers": "2"})) is None
+    in_suite = {**rec, "suite": "shipped (5 tasks in one pool: the wall time is the suite's)"}
+    assert recorded_run_seconds(dataclasses.replace(baseline, recording=in_suite)) is None
 
 
 def test_suite_plans_order_by_recorded_cost_and_fill_unknown_by_trainer(tmp_path):

@@ -25,7 +25,10 @@ __all__ = ["recorded_run_seconds", "run_suite", "suite_plans"]
 
 
 def recorded_run_seconds(baseline: Baseline | None) -> float | None:
-    """CPU seconds one seed took when ``baseline`` was recorded, or ``None`` if not recorded.
+    """CPU seconds one seed took when ``baseline`` was recorded, or ``None`` if not known.
+
+    A baseline recorded as part of a suite (its recording names the suite) carries the whole
+    suite's wall time, which says nothing of its own runs: ``None``.
 
     Examples
     --------
@@ -35,6 +38,8 @@ def recorded_run_seconds(baseline: Baseline | None) -> float | None:
     if baseline is None or not baseline.runs:
         return None
     recording = baseline.recording or {}
+    if "suite" in recording:  # recorded with other manifests in one pool: the wall time is the suite's
+        return None
     try:
         wall, workers = float(recording["wall_seconds"]), int(recording["workers"])
     except (KeyError, TypeError, ValueError):
