@@ -21,16 +21,16 @@ def test_family_is_holm_over_every_task():
     # the first and the last. Split over two tasks, the suite must give each task its share.
     family = _FamilyAdjustment(0.05, 2)
     for task, ps in enumerate([(0.01, 0.03), (0.04, 0.005)]):
-        for direction in ("worse", "better"):
-            family.collecting(task)(direction, ps)
+        for kind in ("p_worse", "p_better"):
+            family.collecting(task)(kind, ps)
     family.adjust()
-    first = family.applying(0)("worse", (0.01, 0.03))
-    second = family.applying(1)("worse", (0.04, 0.005))
+    first = family.applying(0)("p_worse", (0.01, 0.03))
+    second = family.applying(1)("p_worse", (0.04, 0.005))
     assert first.adjusted == pytest.approx((0.03, 0.06)) and first.reject == (True, False)
     assert second.adjusted == pytest.approx((0.06, 0.02)) and second.reject == (False, True)
     assert family.size == 4 and first.method == "Holm over the suite's 4 checks"
     with pytest.raises(RuntimeError, match="changed between the two passes"):
-        family.applying(0)("worse", (0.02, 0.03))
+        family.applying(0)("p_worse", (0.02, 0.03))
 
 
 def test_run_cost_comes_from_the_recorded_wall_time():

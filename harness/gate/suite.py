@@ -6,10 +6,11 @@ differences that make the suite one decision:
 
 - **one family**: the one-sided p-values of every check of every task (each metric
   against the baseline, each published reference) are adjusted together with Holm's
-  step-down procedure at the suite's ``alpha`` (Holm 1979), separately for each
-  direction (worse, better) as within one manifest. The chance that an unchanged
-  configuration is called worse anywhere in the suite stays at most ``alpha``
-  whatever the dependence between checks, however many tasks there are;
+  step-down procedure at the suite's ``alpha`` (Holm 1979), separately for each kind
+  of p-value as within one manifest (worse, better, and the drop beyond the margin that
+  the default rule fails on). The chance that the gate fails an unchanged configuration
+  anywhere in the suite stays at most ``alpha`` whatever the dependence between checks,
+  however many tasks there are;
 - **one alpha**: every task's policy takes the suite's ``alpha``, so each task's
   intervals (``1 - 2 alpha``) and equivalence tests use the same level. Equivalence
   is an intersection-union test and needs no multiplicity correction (Berger 1982).
@@ -89,7 +90,7 @@ class SuiteVerdict:
     def family(self) -> str:
         """How the checks were adjusted, in words."""
         return (f"Holm (1979) over all {self.family_size} checks of the {len(self.verdicts)} tasks at "
-                f"alpha {self.alpha:g}, each direction separately")
+                f"alpha {self.alpha:g}, each kind of p-value separately")
 
     @property
     def summary(self) -> str:
@@ -127,8 +128,8 @@ class _FamilyAdjustment:
         self.adjusted: dict[tuple[int, str], stats.AdjustedPValues] = {}
 
     def collecting(self, task: int) -> Family:
-        def family(direction: str, pvalues: Sequence[float]) -> stats.AdjustedPValues:
-            self.raw[(task, direction)] = tuple(float(p) for p in pvalues)
+        def family(kind: str, pvalues: Sequence[float]) -> stats.AdjustedPValues:
+            self.raw[(task, kind)] = tuple(float(p) for p in pvalues)
             return stats.holm(pvalues, alpha=self.alpha)
 
         return family
@@ -140,9 +141,9 @@ class _FamilyAdjustment:
         return sum(len(self.raw[(t, first)]) for t in range(self.tasks))
 
     def adjust(self) -> None:
-        """Holm over all tasks' p-values of each kind (each direction), at the suite's alpha."""
-        for direction in dict.fromkeys(d for _, d in self.raw):
-            keys = [(t, direction) for t in range(self.tasks)]
+        """Holm over all tasks' p-values of each kind, at the suite's alpha."""
+        for kind in dict.fromkeys(k for _, k in self.raw):
+            keys = [(t, kind) for t in range(self.tasks)]
             joint = stats.holm([p for k in keys for p in self.raw[k]], alpha=self.alpha)
             start = 0
             for k in keys:
@@ -152,10 +153,10 @@ class _FamilyAdjustment:
                 start = stop
 
     def applying(self, task: int) -> Family:
-        def family(direction: str, pvalues: Sequence[float]) -> stats.AdjustedPValues:
-            if tuple(float(p) for p in pvalues) != self.raw[(task, direction)]:
-                raise RuntimeError(f"task {task}: the {direction} p-values changed between the two passes")
-            return self.adjusted[(task, direction)]
+        def family(kind: str, pvalues: Sequence[float]) -> stats.AdjustedPValues:
+            if tuple(float(p) for p in pvalues) != self.raw[(task, kind)]:
+                raise RuntimeError(f"task {task}: the {kind} p-values changed between the two passes")
+            return self.adjusted[(task, kind)]
 
         return family
 
