@@ -14,7 +14,7 @@ from pathlib import Path
 import gymnasium
 import numpy as np
 import pytest
-from test_cli_verify import BROKEN_RULE, cli, manifest_text
+from test_cli_verify import BROKEN_RULE, at, cli, manifest_text  # noqa: F401  (`at` is a fixture: chdir into `project`)
 
 from harness.cli import ExitCode
 
@@ -47,13 +47,6 @@ def project(tmp_path_factory):
     assert "recorded baseline baselines/lake-a.json: 6 seeds" in out
     assert "recorded baseline baselines/lake-b.json: 6 seeds" in out
     return root
-
-
-@pytest.fixture
-def at(project, monkeypatch):
-    monkeypatch.chdir(project)
-    monkeypatch.setenv("RLHARNESS_CACHE_DIR", str(project / "cache"))
-    return project
 
 
 def test_suite_file_gives_one_verdict_and_one_report(at):
