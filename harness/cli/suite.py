@@ -49,8 +49,8 @@ def _folders(args: argparse.Namespace, suite: Any) -> list[Path]:
     return [root / m.name for m in suite.manifests]
 
 
-def _train(args: argparse.Namespace, suite: Any, folders: Sequence[Path], baselines: dict, console: Console,
-           **extra: Any) -> tuple[Any, ...]:
+def _train(args: argparse.Namespace, suite: Any, folders: Sequence[Path], baselines: dict,
+           console: Console) -> tuple[Any, ...]:
     """Every run of every task in one pool, with one progress display."""
     from harness.execute.suite import run_suite
     from harness.report.progress import SuiteProgress
@@ -63,7 +63,7 @@ def _train(args: argparse.Namespace, suite: Any, folders: Sequence[Path], baseli
                   f"in one pool; results in {folders[0].parent}/<task>/ ...", highlight=False, soft_wrap=True)
     try:
         with SuiteProgress(console) as progress:  # draws nothing when the console is not a terminal
-            return run_suite(suite.manifests, folders, baselines, on_event=progress, **options, **extra)
+            return run_suite(suite.manifests, folders, baselines, on_event=progress, **options)
     except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
         raise HarnessError(f"cannot run suite {suite.name}: {exc}") from None
 
@@ -114,7 +114,7 @@ def run_suite_command(args: argparse.Namespace, console: Console) -> ExitCode:
             baselines[m.name] = read_baseline(path, manifest_name=m.name) if path.exists() else None
         except HarnessError:
             baselines[m.name] = None
-    outcomes = _train(args, suite, _folders(args, suite), baselines, console, time_limit=args.time_limit)
+    outcomes = _train(args, suite, _folders(args, suite), baselines, console)
     for outcome in outcomes:
         console.print(RunSummary(outcome))
     return ExitCode.OK if all(o.ok for o in outcomes) else ExitCode.RUNS_FAILED
