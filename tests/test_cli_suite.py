@@ -144,11 +144,13 @@ def test_run_trains_a_suite_in_one_pool(at):
          r"--baseline names one file, so it works with one manifest only"),
         ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml"],
          r"baselines/x.json"),
+        ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml", "--stages", "3,6"],
+         r"--stages: a suite trains every seed of every task in one pool"),
         ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml", "--baseline-ref", "main"],
          r"--baseline-ref main: .* is not inside a git repository"),
     ],
     ids=["missing-manifest", "same-name", "empty-suite", "bad-alpha", "empty-folder", "suite-not-alone",
-         "one-baseline-file", "missing-baseline",
+         "one-baseline-file", "missing-baseline", "stages",
          "baseline-ref-outside-git"],
 )
 def test_bad_suite_exits_2_naming_file_and_key_and_trains_nothing(tmp_path, monkeypatch, files, args, message):

@@ -155,8 +155,15 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
     from harness.store.baseline import default_baseline_path
 
     _refuse(args, "--baseline")
+    if getattr(args, "stages", None) is not None and args.stages.strip().lower() != "off":
+        raise HarnessError("--stages: a suite trains every seed of every task in one pool and decides with the "
+                           "fixed gate; verify a staged manifest on its own, or pass --stages off")
     suite = load_suite(args.manifest, alpha=args.alpha)
     policies = [policy_from_args(m.check, args).with_overrides(alpha=suite.alpha) for m in suite.manifests]
+    for m, policy in zip(suite.manifests, policies, strict=True):
+        if policy.stages is not None:
+            console.print(f"{m.name}: [check] stages set, but a suite trains every seed and decides with the fixed "
+                          "gate", highlight=False)
     baselines, histories, scales = {}, {}, {}
     for m in suite.manifests:  # every baseline is checked before anything trains
         path = default_baseline_path(m.name, args.baselines)
