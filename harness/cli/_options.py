@@ -1,14 +1,16 @@
-"""Command-line options shared by the commands that train: where and how runs execute."""
+"""Command-line pieces shared by several commands: where and how runs execute, and the report files."""
 
 from __future__ import annotations
 
 import argparse
+from collections.abc import Callable
+from pathlib import Path
 from typing import Any
 
 from harness.core.errors import HarnessError
 from harness.execute import EXECUTORS
 
-__all__ = ["add_execution_arguments", "execution_options", "positive_float", "positive_int"]
+__all__ = ["add_execution_arguments", "execution_options", "positive_float", "positive_int", "write_report_files"]
 
 
 def positive_int(text: str) -> int:
@@ -83,3 +85,21 @@ def execution_options(args: argparse.Namespace) -> dict[str, Any]:
         "use_cache": not args.no_cache,
         "time_limit": args.time_limit,
     }
+
+
+def write_report_files(verdict: Any, args: argparse.Namespace, console: Any,
+                       renderers: tuple[Callable[[Any], str], Callable[[Any], str], Callable[[Any], str]]) -> None:
+    """Write the ``--markdown``, ``--json`` and ``--junit`` files that were asked for, each atomically.
+
+    ``renderers`` are the Markdown, JSON and JUnit renderers of ``verdict``'s kind (one manifest, a
+    staged gate or a suite); each file is written only when its option names a path.
+    """
+    from harness.core.atomic import atomic_write_text
+
+    for target, render in zip((args.markdown, args.json, args.junit), renderers, strict=True):
+        if target:
+            path = Path(target)
+            path.parent.mkdir(parents=True, exist_ok=True)
+            atomic_write_text(path, render(verdict))
+            console.print(f"wrote {path}", highlight=False)
+

@@ -17,7 +17,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import execution_options
+from harness.cli._options import execution_options, write_report_files
 from harness.core.errors import ConfigError, HarnessError, RunFailedError
 from harness.gate.staged import Stage, StagedVerdict, plan_stages, staged_verify
 from harness.manifest.policy import GatePolicy
@@ -125,17 +125,10 @@ def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, b
 
 def finish_staged(verdict: StagedVerdict, args: argparse.Namespace, console: Console) -> ExitCode:
     """Print the terminal report, write the requested report files, map the gate to an exit code."""
-    from harness.core.atomic import atomic_write_text
     from harness.report.staged import StagedReport, render_staged_junit, render_staged_markdown, staged_text
 
     console.print(StagedReport(verdict))
-    writers = [(args.markdown, render_staged_markdown), (args.json, staged_text), (args.junit, render_staged_junit)]
-    for target, render in writers:
-        if target:
-            path = Path(target)
-            path.parent.mkdir(parents=True, exist_ok=True)
-            atomic_write_text(path, render(verdict))
-            console.print(f"wrote {path}", highlight=False)
+    write_report_files(verdict, args, console, (render_staged_markdown, staged_text, render_staged_junit))
     if args.plot:
         from harness.report.plot import PlotUnavailableError, plot_curves
 

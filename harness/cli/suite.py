@@ -21,7 +21,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import execution_options
+from harness.cli._options import execution_options, write_report_files
 from harness.core.errors import HarnessError, RunFailedError
 
 __all__ = ["is_suite", "record_suite", "run_suite_command", "verify_suite_command"]
@@ -190,18 +190,11 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
 
 
 def _finish(verdict: Any, args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.core.atomic import atomic_write_text
     from harness.report.plot import PlotUnavailableError, plot_profiles
     from harness.report.suite import SuiteReport, render_suite_junit, render_suite_markdown, suite_text
 
     console.print(SuiteReport(verdict, details=args.details))
-    writers = [(args.markdown, render_suite_markdown), (args.json, suite_text), (args.junit, render_suite_junit)]
-    for target, render in writers:
-        if target:
-            path = Path(target)
-            path.parent.mkdir(parents=True, exist_ok=True)
-            atomic_write_text(path, render(verdict))
-            console.print(f"wrote {path}", highlight=False)
+    write_report_files(verdict, args, console, (render_suite_markdown, suite_text, render_suite_junit))
     if args.plot:
         if verdict.aggregate is None:
             console.print("plot skipped: no task has both a baseline and a score span to plot", highlight=False)

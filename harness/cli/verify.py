@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import argparse
 import tempfile
-from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import add_execution_arguments, execution_options
+from harness.cli._options import add_execution_arguments, execution_options, write_report_files
 from harness.cli.staged import add_stage_arguments, stage_policy, verify_staged
 from harness.core.errors import ConfigError, HarnessError, RunFailedError
 from harness.manifest.policy import KNOWN_METRICS, GatePolicy
@@ -131,20 +130,9 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
     from harness.report.markdown import render_markdown
     from harness.report.plot import PlotUnavailableError, plot_curves
     from harness.report.terminal import VerdictReport
-    from harness.core.atomic import atomic_write_text
 
     console.print(VerdictReport(verdict))
-    writers: list[tuple[str | None, Callable[[], str]]] = [
-        (args.markdown, lambda: render_markdown(verdict)),
-        (args.json, lambda: verdict_text(verdict)),
-        (args.junit, lambda: render_junit(verdict)),
-    ]
-    for target, render in writers:
-        if target:
-            path = Path(target)
-            path.parent.mkdir(parents=True, exist_ok=True)
-            atomic_write_text(path, render())
-            console.print(f"wrote {path}", highlight=False)
+    write_report_files(verdict, args, console, (render_markdown, verdict_text, render_junit))
     if args.plot:
         try:
             console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}", highlight=False)
