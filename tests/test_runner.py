@@ -14,7 +14,8 @@ from harness.core.errors import ManifestError
 from harness.execute import Task, WorkerResult
 from harness.execute.work import lockstep_size, run_task
 from harness.manifest.loader import parse_manifest
-from harness.execute.runner import RunPlan, _tasks, run_manifest, run_plans, run_specs
+from harness.execute.dispatch import lockstep_tasks
+from harness.execute.runner import RunPlan, run_manifest, run_plans, run_specs
 from harness.store.results import read_results, record_text
 
 TABULAR = """
@@ -235,7 +236,7 @@ def test_input_validation_names_the_parameter(tmp_path):
 )
 def test_lockstep_groups_are_balanced_across_workers_in_seed_order(n, k, slots, sizes):
     # Balanced partitioning so that workers finish together: common practice in static load balancing.
-    tasks = _tasks(toy_specs(n), k, slots, None, None)
+    tasks = lockstep_tasks(toy_specs(n), k, slots, None, None)
     assert [len(t.specs) for t in tasks] == sizes
     assert [s.index for t in tasks for s in t.specs] == list(range(n))
 

@@ -27,45 +27,26 @@ lock and takes the result from the cache.
 
 from __future__ import annotations
 
-import bisect
 import dataclasses
 import os
 import time
-from collections import deque
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from multiprocessing.context import BaseContext
 from pathlib import Path
 
-from filelock import FileLock, Timeout
-
 from harness.store.cache import RunCache
-from harness.core.errors import ResultsError
-from harness.core.atomic import sweep_stale_temporaries
 from harness.core.interrupt import sigterm_as_interrupt
-from harness.execute import Executor, RunEvent, Task, WorkerResult, make_executor
+from harness.execute import RunEvent, make_executor
+from harness.execute.dispatch import drive, longest_first
+from harness.execute.plan_state import OnEvent, PlanState
 from harness.execute.work import lockstep_size, run_versions
 from harness.core.spec import RunSpec
-from harness.store.results import (
-    INDEX_FILE,
-    TRAINER_SOURCE,
-    ResultSet,
-    RunRecord,
-    read_index,
-    read_record,
-    record_file_name,
-    same_spec,
-    write_index,
-    write_record,
-)
+from harness.store.results import ResultSet
 
 __all__ = ["DEFAULT_RESULTS_DIR", "RunOutcome", "RunPlan", "run_manifest", "run_plans", "run_specs"]
 
 #: Results go to ``<DEFAULT_RESULTS_DIR>/<manifest name>/`` unless told otherwise.
 DEFAULT_RESULTS_DIR = "results"
-_POLL = 0.2
-_LOCK_FILE = ".rlharness.lock"
-
-OnEvent = Callable[[RunEvent], None]
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -125,204 +106,6 @@ def _options_iv(time_limit: float | None, cache: object, on_event: object) -> No
         raise TypeError(f"`on_event` must be callable or None, got {type(on_event).__name__} {on_event!r}")
     if time_limit is not None and (isinstance(time_limit, bool) or not isinstance(time_limit, (int, float)) or not time_limit > 0):
         raise ValueError(f"`time_limit` must be a positive number of seconds or None, got {time_limit!r}")
-
-
-def _drop_stale_index(folder: Path, manifest: str, config_hash: str) -> None:
-    """Remove an index describing another configuration: the folder is about to be rewritten."""
-    if not (folder / INDEX_FILE).exists():
-        return
-    try:
-        index = read_index(folder)
-        stale = index.get("config_hash") != config_hash or index.get("manifest") != manifest
-    except ResultsError:
-        stale = True
-    if stale:
-        (folder / INDEX_FILE).unlink(missing_ok=True)
-
-
-def _resumable(folder: Path, spec: RunSpec, versions: Mapping[str, str]) -> RunRecord | None:
-    path = folder / record_file_name(spec)
-    if not path.is_file():
-        return None
-    try:
-        record = read_record(path)
-    except ResultsError:
-        return None
-    if record.ok and same_spec(record.spec, spec) and dict(record.versions) == dict(versions):
-        return dataclasses.replace(record, spec=spec)
-    return None
-
-
-def _tasks(specs: Sequence[RunSpec], k: int, slots: int, time_limit: float | None, search_path: str | None,
-           results_dir: str | None = None) -> list[Task]:
-    """Split the runs, in seed order, into lockstep groups of at most ``k`` seeds.
-
-    The number of groups is rounded up to a multiple of the executor's ``slots`` (while
-    there are seeds enough) and the sizes are balanced, so the workers finish together:
-    10 seeds with K = 4 on 2 workers become 3, 3, 2, 2 rather than 4, 4, 2. A seed's numbers
-    do not depend on its group (the trainer interface's lockstep contract).
-    """
-    n = len(specs)
-    groups = -(-n // k)
-    if groups % slots:
-        groups = min(n, groups + slots - groups % slots)
-    size, extra = divmod(n, groups)
-    tasks, start = [], 0
-    for g in range(groups):
-        end = start + size + (g < extra)
-        tasks.append(Task(tuple(specs[start:end]), time_limit, search_path, results_dir))
-        start = end
-    return tasks
-
-
-class _Run:
-    """One plan's state in a :func:`run_plans` call: records so far, claims held, where results go.
-
-    ``offset`` turns the plan's run indices into indices unique across the plans of the call:
-    the executor reports ``offset + index`` (the RunSpec itself keeps its index).
-    """
-
-    def __init__(
-        self,
-        specs: tuple[RunSpec, ...],
-        folder: Path,
-        versions: dict[str, str],
-        cache: RunCache | None,
-        on_event: OnEvent | None,
-        offset: int = 0,
-        search_path: str | None = None,
-    ):
-        self.specs: tuple[RunSpec, ...] = specs
-        self.folder: Path = folder
-        self.versions: dict[str, str] = versions
-        self.cache: RunCache | None = cache
-        self.on_event: OnEvent | None = on_event
-        self.offset: int = offset
-        self.search_path: str | None = search_path
-        self.records: dict[int, RunRecord] = {}
-        self.sources: dict[int, str] = {}
-        self.wall: dict[int, float] = {}
-        self.claims: dict[int, FileLock] = {}
-
-    def emit(self, event: RunEvent) -> None:
-        if self.on_event is not None:
-            self.on_event(dataclasses.replace(event, manifest=self.specs[0].manifest))
-
-    def outgoing(self, task: Task) -> Task:
-        """The task as the executor sees it: reporting run indices unique across the call's plans."""
-        return dataclasses.replace(task, index_offset=self.offset) if self.offset else task
-
-    def write_index(self) -> ResultSet:
-        """Write the index of a plan whose every run has a record; return its result set."""
-        results = ResultSet(self.specs[0].manifest, self.specs[0].config_hash,
-                            tuple(self.records[s.index] for s in self.specs))
-        with FileLock(str(self.folder / _LOCK_FILE)):
-            write_index(self.folder, results, timings=self.wall, sources=self.sources)
-        return results
-
-    def keep(self, record: RunRecord, source: str, wall: float | None = None) -> None:
-        index = record.spec.index
-        if source != "resumed":  # a resumed record is read from its file, which stays as it is
-            write_record(self.folder, record)
-        if source == "trained" and self.cache is not None:
-            self.cache.put(record)
-        self.records[index], self.sources[index] = record, source
-        if wall is not None:
-            self.wall[index] = wall
-        lock = self.claims.pop(index, None)
-        if lock is not None:
-            lock.release()
-        label = record.spec.seed.label
-        if record.ok:
-            self.emit(RunEvent("finished", index, label, mean_return=record.curve.checkpoints[-1].mean, source=source))
-        else:
-            self.emit(RunEvent("failed", index, label, source=source, message=record.failure.strip().splitlines()[-1]))
-
-    def from_cache(self, spec: RunSpec) -> bool:
-        record = self.cache.get(spec, self.versions) if self.cache is not None else None
-        if record is not None:
-            self.keep(record, "cache")
-        return record is not None
-
-    def claim(self, task: Task, *, wait: bool) -> Task | None:
-        """Lock the task's runs in the cache; drop those another runner finished meanwhile.
-
-        Returns the task still to train, or ``None`` when nothing is left or (``wait=False``)
-        another runner holds one of its locks.
-        """
-        if self.cache is None:
-            return task
-        locks = []
-        for spec in task.specs:
-            lock = self.cache.claim(spec, self.versions)
-            try:
-                lock.acquire(timeout=-1 if wait else 0)
-            except Timeout:
-                for held in locks:
-                    held.release()
-                return None
-            locks.append(lock)
-        todo = []
-        for spec, lock in zip(task.specs, locks, strict=True):
-            self.claims[spec.index] = lock
-            if not self.from_cache(spec):
-                todo.append(spec)
-        return dataclasses.replace(task, specs=tuple(todo)) if todo else None
-
-    def accept(self, result: WorkerResult) -> None:
-        spec = self.specs[result.index]
-        versions = self.versions
-        if result.versions is not None:  # the worker's installed versions; the source is the parent's
-            versions = {**result.versions, TRAINER_SOURCE: self.versions[TRAINER_SOURCE]}
-        if result.curve is not None:
-            record = RunRecord(spec, "ok", result.curve, None, versions)
-        else:
-            record = RunRecord(spec, "failed", None, result.failure, versions)
-        self.keep(record, "trained", result.wall_seconds)
-
-    def release_all(self) -> None:
-        for lock in self.claims.values():
-            lock.release()
-        self.claims.clear()
-
-
-def _start(run: _Run, executor: Executor, task: Task, *, wait: bool) -> bool:
-    """Claim and submit a task; False when another runner holds one of its runs (``wait=False``)."""
-    claimed = run.claim(task, wait=wait)
-    if claimed is None:
-        return all(s.index in run.records for s in task.specs)
-    executor.submit(run.outgoing(claimed))
-    for spec in claimed.specs:
-        run.emit(RunEvent("started", spec.index, spec.seed.label))
-    return True
-
-
-def _owner(runs: Sequence[_Run], index: int) -> tuple[_Run, int]:
-    """The plan a run index of the executor belongs to, and the run's index in that plan."""
-    run = runs[bisect.bisect_right([r.offset for r in runs], index) - 1]
-    return run, index - run.offset
-
-
-def _drive(runs: Sequence[_Run], executor: Executor, jobs: list[tuple[_Run, Task]]) -> None:
-    """Submit tasks as workers free up, claiming each first; collect events and results."""
-    queue: deque[tuple[_Run, Task]] = deque(jobs)
-    while queue or executor.pending():
-        skipped: list[tuple[_Run, Task]] = []
-        while queue and executor.capacity() > 0:
-            run, task = queue.popleft()
-            if not _start(run, executor, task, wait=False):
-                skipped.append((run, task))
-        queue.extendleft(reversed(skipped))
-        if queue and not executor.pending():
-            # Every remaining run is being trained by another runner: wait for the first.
-            run, task = queue.popleft()
-            _start(run, executor, task, wait=True)
-        for item in executor.poll(_POLL):
-            run, local = _owner(runs, item.index)
-            if isinstance(item, RunEvent):
-                run.emit(dataclasses.replace(item, index=local))
-            else:
-                run.accept(dataclasses.replace(item, index=local))
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -422,39 +205,27 @@ def run_plans(
     for plan in plans:
         plan.results_dir.mkdir(parents=True, exist_ok=True)
         versions = run_versions(plan.specs[0], search_path=plan.trainer_path)
-        runs.append(_Run(plan.specs, plan.results_dir, versions, cache, on_event, offset, plan.trainer_path))
+        runs.append(PlanState(plan.specs, plan.results_dir, versions, cache, on_event, offset, plan.trainer_path))
         offset += len(plan.specs)
-        with FileLock(str(plan.results_dir / _LOCK_FILE)):
-            _drop_stale_index(plan.results_dir, plan.specs[0].manifest, plan.specs[0].config_hash)
-            sweep_stale_temporaries(plan.results_dir)  # left by a runner killed mid-write
+        runs[-1].tidy_folder()
     for run in runs:
         for spec in run.specs:
             run.emit(RunEvent("planned", spec.index, spec.seed.label, budget=spec.budget))
     for run in runs:
         for spec in run.specs:
-            record = _resumable(run.folder, spec, run.versions)
-            if record is not None:
-                run.keep(record, "resumed")
-            else:
-                run.from_cache(spec)
-    todo = {id(run): [s for s in run.specs if s.index not in run.records] for run in runs}
+            run.resume_or_take_cached(spec)
+    todo = [(plan, run, [s for s in run.specs if s.index not in run.records])
+            for plan, run in zip(plans, runs, strict=True)]
     # Resolving each trainer's lockstep size fails early on a trainer that cannot be found.
-    sizes = {id(run): lockstep_size(todo[id(run)][0], search_path=run.search_path) for run in runs if todo[id(run)]}
-    for run in runs:
-        if todo[id(run)]:  # files are about to change: until the new index is written, the folder has none
-            with FileLock(str(run.folder / _LOCK_FILE)):
-                (run.folder / INDEX_FILE).unlink(missing_ok=True)
+    work = [(run, plan.cost, specs, lockstep_size(specs[0], search_path=run.search_path))
+            for plan, run, specs in todo if specs]
+    for run, *_ in work:  # files are about to change: until the new index is written, the folder has none
+        run.drop_index()
     with sigterm_as_interrupt():
-        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if sizes else None
+        pool = make_executor(executor, workers=workers, scheduler=scheduler, context=context) if work else None
         try:
             if pool is not None:
-                slots = max(1, pool.capacity())
-                jobs = [(plan.cost * len(task.specs), n, run, task)
-                        for n, (plan, run) in enumerate(zip(plans, runs, strict=True)) if todo[id(run)]
-                        for task in _tasks(todo[id(run)], sizes[id(run)], slots, time_limit, run.search_path,
-                                           str(run.folder.absolute()))]
-                jobs.sort(key=lambda job: (-job[0], job[1]))  # longest first; stable within a plan
-                _drive(runs, pool, [(run, task) for _, _, run, task in jobs])
+                drive(runs, pool, longest_first(work, max(1, pool.capacity()), time_limit))
         finally:
             if pool is not None:
                 pool.close()
