@@ -20,7 +20,7 @@ from harness.core.seeding import plan_seeds
 from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec
 from harness.store.results import TRAINER_SOURCE
 from harness.store.results import ResultSet, RunRecord
-from harness.gate.compare import decide
+from harness.gate.decision import decide
 from harness.gate.verify import verify_sets
 
 # NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.3, AUTO83B data (published raw data;

@@ -30,7 +30,7 @@ A significant difference whose interval also lies inside the margin is marked
 than the margin (the one-sided Welch test of ``H0: drop <= margin``, Holm-corrected
 across checks the same way): ``beyond_margin``.
 
-The gate (:func:`decide`) applies the policy's ``rule``
+The gate (:func:`harness.gate.decision.decide`) applies the policy's ``rule``
 (:mod:`harness.stats.drop_rules`) to these numbers: by default it fails only
 when a drop is significantly larger than the margin; ``any-drop`` fails on any
 significant drop. A check whose test cannot reach its level with the seeds at
@@ -46,7 +46,7 @@ Differences and spreads within floating-point resolution count as zero
 
 Where the curves part is located with a max-statistic permutation test over
 checkpoints (Westfall & Young 1993), which controls the family-wise error over
-the whole curve.
+the whole curve (:mod:`harness.gate.divergence`).
 """
 
 from __future__ import annotations
@@ -59,13 +59,15 @@ import numpy as np
 from harness import stats
 from harness.core.errors import BaselineError
 from harness.gate.curveset import CurveSet
+from harness.gate.decision import GateDecision, decide
+from harness.gate.divergence import Divergence, locate_divergence
 from harness.gate.margins import GateScale, gate_scale
 from harness.gate.metrics import METRICS
 from harness.manifest.policy import GatePolicy, PublishedReference
-from harness.stats import DROP_RULES, ConfidenceInterval
+from harness.stats import ConfidenceInterval
 
-__all__ = ["VERDICTS", "Divergence", "Family", "GateDecision", "MetricCheck", "StatisticalComparison",
-           "compare_sets", "decide", "divergence_seeds_needed"]
+__all__ = ["VERDICTS", "Family", "MetricCheck", "MetricValues", "StatisticalComparison", "compare_sets",
+           "metric_values"]
 
 VERDICTS = ("equivalent", "worse", "better", "inconclusive")
 
@@ -157,44 +159,6 @@ class MetricCheck:
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
-class Divergence:
-    """Where the candidate's curve first falls significantly below the baseline's.
-
-    ``first_step``/``last_step`` bound the first contiguous range of checkpoints where the
-    max-statistic test rejects at ``alpha`` (both ``None`` if nowhere); ``pvalue`` is the
-    smallest adjusted p-value in that range (or overall when nowhere). ``seeds_needed`` is set
-    when the test cannot reach ``alpha`` with the seeds at hand (``candidate_n`` against
-    ``baseline_n``): the seeds per side it needs; then "nowhere" means nothing.
-    """
-
-    first_step: int | None
-    last_step: int | None
-    pvalue: float
-    alpha: float
-    method: str
-    candidate_n: int = 0
-    baseline_n: int = 0
-    seeds_needed: int | None = None
-
-    @property
-    def found(self) -> bool:
-        return self.first_step is not None
-
-    @property
-    def reading(self) -> str:
-        if self.seeds_needed is not None:
-            return (f"cannot tell where the curves part with {self.candidate_n} vs {self.baseline_n} seeds (needs "
-                    f"{self.seeds_needed} per side): the permutation test's smallest p-value here is {self.pvalue:.3g}, "
-                    f"above alpha = {self.alpha:g}.")
-        if not self.found:
-            return f"nowhere: at no checkpoint is the candidate significantly below (smallest adjusted p = {self.pvalue:.3g})."
-        return (
-            f"the candidate first falls significantly below between steps {self.first_step} and {self.last_step} "
-            f"(family-wise adjusted p = {self.pvalue:.3g})."
-        )
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
 class StatisticalComparison:
     """Every statistical check of one comparison, and where the curves part (if looked for)."""
 
@@ -204,16 +168,6 @@ class StatisticalComparison:
     power: float
     gate: GateDecision
     scale: GateScale
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
-class GateDecision:
-    """The gate's outcome under ``rule``, the reasons for it (one line per failing check) and the failing checks."""
-
-    passed: bool
-    reasons: tuple[str, ...]
-    failing: tuple[str, ...] = ()
-    rule: str = "drop-beyond-margin"
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -365,66 +319,6 @@ def _finish(raw: _Raw, p: tuple[float, float, float], reject: tuple[bool, bool, 
     )
 
 
-def divergence_seeds_needed(n_candidate: int, n_baseline: int, policy: GatePolicy) -> int | None:
-    """Seeds per side the where-the-curves-part test needs to reach ``alpha``; ``None`` if these suffice."""
-    def smallest(n_c: int, n_b: int) -> float:
-        return stats.smallest_pvalue_permutation(n_c, n_b, n_resamples=policy.permutations, alternative="less")
-
-    if smallest(n_candidate, n_baseline) <= policy.alpha:
-        return None
-    return stats.minimum_seeds(lambda n: smallest(n, n), policy.alpha)
-
-
-def _divergence(baseline: CurveSet, candidate: CurveSet, policy: GatePolicy) -> Divergence:
-    a, b = candidate.curve_matrix(), baseline.curve_matrix()
-    steps = baseline.steps
-    rng = np.random.default_rng(np.random.SeedSequence(0x4449564552))  # fixed: same data, same report
-    result = stats.max_statistic_test(a, b, alternative="less", n_resamples=policy.permutations, rng=rng,
-                                      alpha=policy.alpha)
-    adjusted = np.asarray(result.adjusted_pvalues, dtype=np.float64)
-    method = f"{result.method}; Westfall & Young (1993)"
-    sizes = {"candidate_n": a.shape[0], "baseline_n": b.shape[0],
-             "seeds_needed": divergence_seeds_needed(a.shape[0], b.shape[0], policy)}
-    where = result.first_rejected_range(policy.alpha)
-    if where is None:
-        return Divergence(None, None, float(adjusted.min()), policy.alpha, method, **sizes)
-    return Divergence(steps[where.start], steps[where.stop - 1], float(adjusted[where.start:where.stop].min()),
-                      policy.alpha, method, **sizes)
-
-
-def _oriented_drop(check: MetricCheck) -> tuple[float, ConfidenceInterval]:
-    """The check's drop (positive = worse) and its interval."""
-    if METRICS[check.metric].higher_is_better:
-        return -check.estimate, ConfidenceInterval(-check.interval.high, -check.interval.low)
-    return check.estimate, check.interval
-
-
-def decide(checks: Sequence[MetricCheck], policy: GatePolicy) -> GateDecision:
-    """Apply the gate policy (its ``rule`` and ``strict``) to the statistical verdicts."""
-    reasons, failing, forgiven = [], [], []
-    rule = DROP_RULES[policy.rule]
-    for c in checks:
-        drop, drop_interval = _oriented_drop(c)
-        fails = stats.drop_fails(policy.rule, significant=c.verdict == "worse", beyond_margin=c.beyond_margin,
-                                 drop=drop, drop_interval=drop_interval, margin=c.margin)
-        if fails:
-            reasons.append(f"{c.title} fails rule {rule.name} ({rule.fails_when}): difference {c.estimate:+.4g}, "
-                           f"margin ±{c.margin:.4g}, Holm-adjusted p = {c.pvalue_worse:.3g} (worse), "
-                           f"{c.pvalue_beyond:.3g} (worse by more than the margin)")
-            failing.append(c.name)
-        elif c.verdict == "worse":
-            forgiven.append(c.name)
-        elif c.verdict == "inconclusive" and policy.strict:
-            settle = (f"needs {c.undecidable} seeds per side to decide at all" if c.undecidable is not None else
-                      f"about {c.seeds_needed} seeds per side would settle it")
-            reasons.append(f"{c.title} is inconclusive and the policy is strict ({settle})")
-            failing.append(c.name)
-    if not reasons:
-        note = (f" (significantly worse but not failing rule {rule.name}: {', '.join(forgiven)})" if forgiven else "")
-        return GateDecision(True, (f"no check fails rule {rule.name} ({rule.fails_when}){note}",), (), rule.name)
-    return GateDecision(False, tuple(reasons), tuple(failing), rule.name)
-
-
 def compare_sets(
     baseline: CurveSet | None,
     candidate: CurveSet,
@@ -502,6 +396,6 @@ def compare_sets(
         _finish(raw, tuple(float(h.adjusted[i]) for h in holm), tuple(bool(h.reject[i]) for h in holm), policy)
         for i, raw in enumerate(raws)
     )
-    divergence = _divergence(baseline, candidate, policy) if baseline is not None and policy.locate else None
+    divergence = locate_divergence(baseline, candidate, policy) if baseline is not None and policy.locate else None
     return StatisticalComparison(checks=checks, divergence=divergence, alpha=policy.alpha, power=policy.power,
                                  gate=decide(checks, policy), scale=scale)

@@ -17,7 +17,7 @@ Layers, each reported:
    significantly below (family-wise error controlled).
 
 The **gate** is a policy over those verdicts (:class:`harness.manifest.policy.GatePolicy`,
-applied by :func:`harness.gate.compare.decide`): it fails on nondeterminism (unless
+applied by :func:`harness.gate.decision.decide`): it fails on nondeterminism (unless
 ``allow_nondeterminism``), under its ``rule`` (by default ``drop-beyond-margin``: a drop
 significantly larger than the margin fails; ``any-drop``: any significant drop fails) and, in
 ``strict`` mode, when a check is inconclusive. Every report names the rule that decided.
@@ -36,7 +36,9 @@ import numpy as np
 from harness import stats
 from harness.core.errors import BaselineError, ConfigError, ResultsError
 from harness.core.spec import TaskSpec, config_changes
-from harness.gate.compare import Divergence, Family, GateDecision, MetricCheck, compare_sets, divergence_seeds_needed
+from harness.gate.compare import Family, MetricCheck, compare_sets
+from harness.gate.decision import GateDecision
+from harness.gate.divergence import Divergence, divergence_seeds_needed
 from harness.gate.curveset import CurveSet, task_from_data
 from harness.gate.margins import GateScale, task_scale
 from harness.manifest.policy import GatePolicy, PublishedReference
