@@ -55,7 +55,7 @@ from harness.execute.runner import run_manifest
 from harness.gate.calibration_set import calibration_manifest
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet
-from harness.gate.verify import check_gate_policy
+from harness.gate.preflight import check_gate_policy
 from harness.gate.fresh_sets import baseline_draw, check_fresh_sets
 from harness.manifest.loader import load_manifest
 from harness.store.baseline import SeedCurve, read_baseline

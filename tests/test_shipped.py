@@ -47,7 +47,8 @@ def test_shipped_gate_policy_is_valid_and_passes_its_own_baseline(path):
     import dataclasses
 
     from harness.gate.curveset import CurveSet
-    from harness.gate.verify import check_gate_policy, verify_sets
+    from harness.gate.preflight import check_gate_policy
+    from harness.gate.verify import verify_sets
     from harness.stats import DROP_RULES
 
     manifest = load_manifest(path)

@@ -367,7 +367,7 @@ def test_two_seeds_per_side_cannot_tell_where_curves_part():
 
 
 def test_minimum_seeds_per_check_of_a_policy():
-    from harness.gate.verify import minimum_seeds
+    from harness.gate.preflight import minimum_seeds
 
     needs = minimum_seeds(GatePolicy(margin=1.0))
     assert sorted(needs.values()) == [2, 2, 3]  # Welch, Welch, permutation (1/C(6, 3) = 0.05)

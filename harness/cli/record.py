@@ -2,7 +2,7 @@
 
 Refuses to replace an existing baseline unless ``--overwrite`` is given, and a
 manifest whose gate policy is invalid or whose seeds are too few for its own
-checks (:func:`harness.gate.verify.check_gate_policy`); both checks happen
+checks (:func:`harness.gate.preflight.check_gate_policy`); both checks happen
 before anything is run. Exit codes: 0 recorded, 2 bad input
 (nothing written), 3 runs failed (no baseline written).
 """
@@ -37,7 +37,7 @@ def _program_commit(manifest: Any) -> str | None:
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.cli.suite import is_suite, record_suite
     from harness.store.baseline import check_overwrite, default_baseline_path
-    from harness.gate.verify import check_gate_policy
+    from harness.gate.preflight import check_gate_policy
     from harness.manifest.loader import load_manifest
     from harness.store.results import read_index
 

@@ -21,7 +21,7 @@ __all__ = ["register"]
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.gate.verify import check_gate_policy
+    from harness.gate.preflight import check_gate_policy
     from harness.cli.suite import is_suite, run_suite_command
     from harness.manifest.loader import load_manifest
     from harness.report.progress import RunProgress, RunSummary

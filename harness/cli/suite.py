@@ -102,7 +102,7 @@ def run_suite_command(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.report.progress import RunSummary
     from harness.store.baseline import default_baseline_path, read_baseline
 
-    from harness.gate.verify import check_gate_policy
+    from harness.gate.preflight import check_gate_policy
 
     suite = load_suite(args.manifest)
     for m in suite.manifests:  # a gate that could never decide is refused before any training
@@ -123,7 +123,7 @@ def run_suite_command(args: argparse.Namespace, console: Console) -> ExitCode:
 def record_suite(args: argparse.Namespace, console: Console) -> ExitCode:
     """``rlharness record`` over a suite: one pool, then one baseline per task; none if any run failed."""
     from harness.cli.record import store_baseline
-    from harness.gate.verify import check_gate_policy
+    from harness.gate.preflight import check_gate_policy
     from harness.manifest.suite import load_suite
     from harness.store.baseline import check_overwrite, default_baseline_path
 
@@ -150,7 +150,7 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
                          policy_from_args: Callable[[Any, argparse.Namespace], Any]) -> ExitCode:
     """``rlharness verify`` over a suite: one family of checks, one verdict, one exit code."""
     from harness.gate.suite import SuiteMember, verify_suite
-    from harness.gate.verify import baseline_for, check_gate_policy
+    from harness.gate.preflight import baseline_for, check_gate_policy
     from harness.manifest.suite import load_suite
     from harness.store.baseline import default_baseline_path
 

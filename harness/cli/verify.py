@@ -145,7 +145,8 @@ def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
     from harness.cli.suite import is_suite, verify_suite_command
     from harness.store.baseline import default_baseline_path
     from harness.manifest.loader import load_manifest
-    from harness.gate.verify import baseline_for, check_baseline_seeds, check_gate_policy, verify_manifest
+    from harness.gate.preflight import baseline_for, check_baseline_seeds, check_gate_policy
+    from harness.gate.verify import verify_manifest
 
     try:
         _check_report_paths(args)

@@ -47,7 +47,7 @@ from harness.gate.margins import GateScale, gate_scale
 from harness.manifest.policy import GatePolicy
 from harness.stats._validate import check_positive_int
 from harness.stats.proportion import BinomialRate
-from harness.gate.verify import check_gate_policy
+from harness.gate.preflight import check_gate_policy
 
 __all__ = [
     "DEFAULT_SPLITS",
@@ -306,7 +306,7 @@ def calibrate_curves(
     splits, split_seed
         Number of A/A splits and the entropy of the Generator that draws them.
     scale
-        Floor, threshold and margins (:func:`harness.gate.verify.check_gate_policy`); by default
+        Floor, threshold and margins (:func:`harness.gate.preflight.check_gate_policy`); by default
         sized from the policy alone.
     targets
         Differences to detect per metric (default: each metric's margin).
@@ -440,7 +440,7 @@ def plan_calibration(
     ValueError
         Too few seeds, a bad split count or seed, a target for a metric the gate does not
         check, or an invalid gate policy (a ``ConfigError`` naming the file and key,
-        :func:`harness.gate.verify.check_gate_policy`).
+        :func:`harness.gate.preflight.check_gate_policy`).
     BaselineError
         The baseline belongs to another manifest, grid or configuration, or leaves no fresh set.
     """

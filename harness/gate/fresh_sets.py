@@ -42,7 +42,8 @@ from harness.core.spec import canonical_json
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet
 from harness.gate.margins import GateScale, gate_scale
-from harness.gate.verify import check_grid, verify_sets
+from harness.gate.preflight import check_grid
+from harness.gate.verify import verify_sets
 from harness.store.baseline import Baseline
 from harness.manifest.policy import GatePolicy, PublishedReference
 from harness.stats._validate import check_positive_int

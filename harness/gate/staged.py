@@ -252,7 +252,7 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, scale: GateSca
     baseline
         The recorded baseline (``harness.store.baseline.Baseline``) or None.
     scale
-        The metrics' margins (``harness.gate.verify.check_gate_policy``).
+        The metrics' margins (``harness.gate.preflight.check_gate_policy``).
     key
         Where the stages were given, for messages: ``"check.stages"`` or a command-line option.
 

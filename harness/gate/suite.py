@@ -42,7 +42,7 @@ class SuiteMember:
     replaced by the suite's. ``history`` is how the baseline changed since a git ref
     (:func:`harness.store.history.baseline_history`), shown in the task's report; ``scale``
     the floor, threshold and margins if already resolved
-    (:func:`harness.gate.verify.check_gate_policy`).
+    (:func:`harness.gate.preflight.check_gate_policy`).
     """
 
     manifest: object
