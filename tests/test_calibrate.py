@@ -24,7 +24,8 @@ from rich.console import Console
 
 from harness import stats
 from harness.store.baseline import SeedCurve
-from harness.gate.calibrate import calibrate_curves, plan_calibration, split_groups
+from harness.gate.calibrate import calibrate_curves, split_groups
+from harness.gate.calibration_run import plan_calibration
 from harness.gate.calibration_set import calibration_manifest
 from harness.cli import ExitCode, main
 from harness.core.curves import Checkpoint, LearningCurve

@@ -73,7 +73,7 @@ def _baseline(args: argparse.Namespace, manifest: Any) -> Any:
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
-    from harness.gate.calibrate import plan_calibration, run_calibration
+    from harness.gate.calibration_run import plan_calibration, run_calibration
     from harness.manifest.loader import load_manifest
     from harness.report.calibration import CalibrationReport, render_calibration_markdown
     from harness.report.progress import RunProgress
