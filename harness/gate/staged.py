@@ -50,7 +50,8 @@ from harness.gate.verify import (
 )
 from harness.manifest.policy import GatePolicy
 from harness.stats.drop_rules import DROP_RULES
-from harness.stats.sequential import SequentialLook, SequentialPlan
+from harness.stats.sequential import SequentialLook
+from harness.stats.sequential_design import SequentialPlan
 
 __all__ = ["STAGED_RULES", "MetricOutcome", "Stage", "StagePlan", "StagedVerdict", "plan_stages", "staged_verify"]
 

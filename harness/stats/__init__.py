@@ -62,12 +62,11 @@ from harness.stats.resolution import (
 from harness.stats.sequential import (
     DECISIONS,
     SequentialLook,
-    SequentialPlan,
     SequentialResult,
     sequential_look,
-    sequential_plan,
     sequential_test,
 )
+from harness.stats.sequential_design import SequentialPlan, sequential_plan
 from harness.stats.welch import WelchResult, welch_test, welch_test_from_stats
 
 __all__ = [

@@ -25,23 +25,15 @@ import numpy as np
 from scipy import special as _sp
 
 from harness.stats._result import ConfidenceInterval, fmt, fmt_p
-from harness.stats._validate import (
-    as_sample,
-    check_finite_number,
-    check_one_sided_level,
-    check_positive_int,
-    check_stage_counts,
-)
-from harness.stats.boundaries import SequentialBoundaries, check_kind, sequential_boundaries
+from harness.stats._validate import as_sample, check_finite_number, check_positive_int
+from harness.stats.sequential_design import SequentialPlan, check_plan
 from harness.stats.welch import welch_moments
 
 __all__ = [
     "DECISIONS",
     "SequentialLook",
-    "SequentialPlan",
     "SequentialResult",
     "sequential_look",
-    "sequential_plan",
     "sequential_test",
 ]
 
@@ -49,37 +41,6 @@ Decision = Literal["worse", "equivalent", "continue", "final"]
 
 #: The outcomes of a look, in the order a look checks them.
 DECISIONS: tuple[str, ...] = ("worse", "equivalent", "continue", "final")
-
-
-@dataclasses.dataclass(frozen=True, slots=True)
-class SequentialPlan:
-    """When to look and what each look must cross.
-
-    Attributes
-    ----------
-    stages
-        Candidate seeds at each look, strictly increasing (e.g. ``(5, 10, 15, 20)``).
-    baseline_stages
-        Baseline seeds at each look (non-decreasing; the same as ``stages``
-        unless given, or constant when the baseline is recorded in full).
-    worse
-        One-sided boundaries of the "worse" test at level ``alpha``.
-    equivalence
-        One-sided boundaries used by each of the two equivalence tests at level
-        ``alpha_equivalence``.
-    method
-        The designs' names.
-    """
-
-    stages: tuple[int, ...]
-    baseline_stages: tuple[int, ...]
-    worse: SequentialBoundaries
-    equivalence: SequentialBoundaries
-    method: str
-
-    @property
-    def looks(self) -> int:
-        return len(self.stages)
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -189,86 +150,6 @@ class SequentialResult:
         return (self.looks[-1].n_baseline, self.looks[-1].n_candidate)
 
 
-def _sequential_plan_iv(stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind):
-    cand = check_stage_counts(stages, "stages", strict=True)
-    base = cand if baseline_stages is None else check_stage_counts(baseline_stages, "baseline_stages", strict=False)
-    if len(base) != len(cand):
-        raise ValueError(
-            f"`baseline_stages` must have one entry per look ({len(cand)}), got {len(base)}: {baseline_stages!r}"
-        )
-    alpha = check_one_sided_level(alpha, "alpha")
-    alpha_eq = alpha if alpha_equivalence is None else check_one_sided_level(alpha_equivalence, "alpha_equivalence")
-    kind = check_kind(kind, "kind")
-    eq_kind = kind if equivalence_kind is None else check_kind(equivalence_kind, "equivalence_kind")
-    return cand, base, alpha, alpha_eq, kind, eq_kind
-
-
-def sequential_plan(
-    stages: object,
-    *,
-    baseline_stages: object | None = None,
-    alpha: float = 0.05,
-    alpha_equivalence: float | None = None,
-    kind: str = "obrien-fleming-spending",
-    equivalence_kind: str | None = None,
-) -> SequentialPlan:
-    """Plan a group-sequential comparison: the looks and the boundaries of both questions.
-
-    Parameters
-    ----------
-    stages
-        Candidate seeds at each look, strictly increasing, at least 2 each.
-    baseline_stages
-        Baseline seeds at each look, non-decreasing; defaults to ``stages``.
-        Pass the recorded count at every look (e.g. ``(20, 20, 20, 20)``) when
-        the baseline already holds all its seeds.
-    alpha
-        Overall one-sided false-alarm rate of "worse".
-    alpha_equivalence
-        Overall level of each one-sided half of the equivalence test (the rate of
-        declaring equivalence when ``|difference| >= margin``); defaults to ``alpha``.
-    kind, equivalence_kind
-        The design of each question, one of :data:`~harness.stats.boundaries.BOUNDARY_KINDS`
-        (``equivalence_kind`` defaults to ``kind``).
-
-    Returns
-    -------
-    SequentialPlan
-
-    Notes
-    -----
-    The information at a look is taken as ``1 / (1/n_baseline + 1/n_candidate)``
-    (Welch's information ``1 / se^2`` with the unknown variances equal), so that
-    with equal groups the information fraction is ``n_k / n_K``. If a look ends
-    up with other seed counts (a failed run), plan again with the counts
-    observed: for a spending design that is the Lan & DeMets (1983) way of
-    handling unplanned information.
-
-    References
-    ----------
-    .. [1] Lan, K. K. G. & DeMets, D. L. (1983). Biometrika 70:659–663.
-    .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
-       Applications to Clinical Trials. Chapman & Hall/CRC, ch. 4 (one-sided
-       tests) and ch. 6 (equivalence tests).
-
-    Examples
-    --------
-    >>> plan = sequential_plan((5, 10, 15, 20), alpha=0.05)
-    >>> [round(c, 3) for c in plan.worse.critical]
-    [3.75, 2.54, 2.016, 1.72]
-    """
-    cand, base, alpha, alpha_eq, kind, eq_kind = _sequential_plan_iv(
-        stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind
-    )
-    information = [1.0 / (1.0 / b + 1.0 / c) for b, c in zip(base, cand)]
-    worse = sequential_boundaries(information, alpha=alpha, kind=kind, sides=1)
-    equivalence = worse if (eq_kind, alpha_eq) == (kind, alpha) else sequential_boundaries(
-        information, alpha=alpha_eq, kind=eq_kind, sides=1
-    )
-    method = f"worse: {worse.method}; equivalence: two one-sided tests (Schuirmann 1987), {equivalence.method}"
-    return SequentialPlan(stages=cand, baseline_stages=base, worse=worse, equivalence=equivalence, method=method)
-
-
 def _t_sf(statistic: float, df: float) -> float:
     return float(_sp.stdtr(df, -statistic))
 
@@ -345,14 +226,8 @@ def _margins_iv(shift: object, margin: object) -> tuple[float, float]:
     return s, m
 
 
-def _plan_iv(plan: object) -> SequentialPlan:
-    if not isinstance(plan, SequentialPlan):
-        raise TypeError(f"`plan` must be a SequentialPlan from sequential_plan(), got {type(plan).__name__}")
-    return plan
-
-
 def _sequential_look_iv(baseline, candidate, plan, look, shift, margin):
-    plan = _plan_iv(plan)
+    plan = check_plan(plan)
     look = check_positive_int(look, "look")
     if look > plan.looks:
         raise ValueError(f"`look` must be between 1 and {plan.looks} for this plan, got {look}")
@@ -412,6 +287,7 @@ def sequential_look(
 
     Examples
     --------
+    >>> from harness.stats import sequential_plan
     >>> plan = sequential_plan((5, 10), alpha=0.05)
     >>> r = sequential_look([10.0, 11, 9, 10, 10.5], [1.0, 2, 1.5, 0.5, 1], plan=plan, look=1, margin=2.0)
     >>> r.decision
@@ -465,13 +341,14 @@ def sequential_test(
 
     Examples
     --------
+    >>> from harness.stats import sequential_plan
     >>> rng = np.random.default_rng(np.random.SeedSequence(7))
     >>> base, cand = rng.normal(100, 10, 20), rng.normal(60, 10, 20)
     >>> r = sequential_test(base, cand, plan=sequential_plan((5, 10, 15, 20)), margin=10.0)
     >>> r.decision, r.seeds_used
     ('worse', (5, 5))
     """
-    plan = _plan_iv(plan)
+    plan = check_plan(plan)
     base_all, cand_all = _available_iv(baseline, "baseline"), _available_iv(candidate, "candidate")
     shift, margin = _margins_iv(shift, margin)
     looks: list[SequentialLook] = []

@@ -1,0 +1,132 @@
+"""The plan of a group-sequential comparison: when to look and what each look must cross.
+
+A plan holds the looks (seeds per side at each) and the boundaries of each question a look asks,
+computed on the normal scale by :mod:`harness.stats.boundaries`; :mod:`harness.stats.sequential`
+takes the looks. Information at a look is ``1 / (1/n_baseline + 1/n_candidate)``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+from harness.stats._validate import check_one_sided_level, check_stage_counts
+from harness.stats.boundaries import SequentialBoundaries, check_kind, sequential_boundaries
+
+__all__ = ["SequentialPlan", "check_plan", "sequential_plan"]
+
+
+@dataclasses.dataclass(frozen=True, slots=True)
+class SequentialPlan:
+    """When to look and what each look must cross.
+
+    Attributes
+    ----------
+    stages
+        Candidate seeds at each look, strictly increasing (e.g. ``(5, 10, 15, 20)``).
+    baseline_stages
+        Baseline seeds at each look (non-decreasing; the same as ``stages``
+        unless given, or constant when the baseline is recorded in full).
+    worse
+        One-sided boundaries of the "worse" test at level ``alpha``.
+    equivalence
+        One-sided boundaries used by each of the two equivalence tests at level
+        ``alpha_equivalence``.
+    method
+        The designs' names.
+    """
+
+    stages: tuple[int, ...]
+    baseline_stages: tuple[int, ...]
+    worse: SequentialBoundaries
+    equivalence: SequentialBoundaries
+    method: str
+
+    @property
+    def looks(self) -> int:
+        return len(self.stages)
+
+
+def _sequential_plan_iv(stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind):
+    cand = check_stage_counts(stages, "stages", strict=True)
+    base = cand if baseline_stages is None else check_stage_counts(baseline_stages, "baseline_stages", strict=False)
+    if len(base) != len(cand):
+        raise ValueError(
+            f"`baseline_stages` must have one entry per look ({len(cand)}), got {len(base)}: {baseline_stages!r}"
+        )
+    alpha = check_one_sided_level(alpha, "alpha")
+    alpha_eq = alpha if alpha_equivalence is None else check_one_sided_level(alpha_equivalence, "alpha_equivalence")
+    kind = check_kind(kind, "kind")
+    eq_kind = kind if equivalence_kind is None else check_kind(equivalence_kind, "equivalence_kind")
+    return cand, base, alpha, alpha_eq, kind, eq_kind
+
+
+def sequential_plan(
+    stages: object,
+    *,
+    baseline_stages: object | None = None,
+    alpha: float = 0.05,
+    alpha_equivalence: float | None = None,
+    kind: str = "obrien-fleming-spending",
+    equivalence_kind: str | None = None,
+) -> SequentialPlan:
+    """Plan a group-sequential comparison: the looks and the boundaries of both questions.
+
+    Parameters
+    ----------
+    stages
+        Candidate seeds at each look, strictly increasing, at least 2 each.
+    baseline_stages
+        Baseline seeds at each look, non-decreasing; defaults to ``stages``.
+        Pass the recorded count at every look (e.g. ``(20, 20, 20, 20)``) when
+        the baseline already holds all its seeds.
+    alpha
+        Overall one-sided false-alarm rate of "worse".
+    alpha_equivalence
+        Overall level of each one-sided half of the equivalence test (the rate of
+        declaring equivalence when ``|difference| >= margin``); defaults to ``alpha``.
+    kind, equivalence_kind
+        The design of each question, one of :data:`~harness.stats.boundaries.BOUNDARY_KINDS`
+        (``equivalence_kind`` defaults to ``kind``).
+
+    Returns
+    -------
+    SequentialPlan
+
+    Notes
+    -----
+    The information at a look is taken as ``1 / (1/n_baseline + 1/n_candidate)``
+    (Welch's information ``1 / se^2`` with the unknown variances equal), so that
+    with equal groups the information fraction is ``n_k / n_K``. If a look ends
+    up with other seed counts (a failed run), plan again with the counts
+    observed: for a spending design that is the Lan & DeMets (1983) way of
+    handling unplanned information.
+
+    References
+    ----------
+    .. [1] Lan, K. K. G. & DeMets, D. L. (1983). Biometrika 70:659–663.
+    .. [2] Jennison, C. & Turnbull, B. W. (2000). Group Sequential Methods with
+       Applications to Clinical Trials. Chapman & Hall/CRC, ch. 4 (one-sided
+       tests) and ch. 6 (equivalence tests).
+
+    Examples
+    --------
+    >>> plan = sequential_plan((5, 10, 15, 20), alpha=0.05)
+    >>> [round(c, 3) for c in plan.worse.critical]
+    [3.75, 2.54, 2.016, 1.72]
+    """
+    cand, base, alpha, alpha_eq, kind, eq_kind = _sequential_plan_iv(
+        stages, baseline_stages, alpha, alpha_equivalence, kind, equivalence_kind
+    )
+    information = [1.0 / (1.0 / b + 1.0 / c) for b, c in zip(base, cand)]
+    worse = sequential_boundaries(information, alpha=alpha, kind=kind, sides=1)
+    equivalence = worse if (eq_kind, alpha_eq) == (kind, alpha) else sequential_boundaries(
+        information, alpha=alpha_eq, kind=eq_kind, sides=1
+    )
+    method = f"worse: {worse.method}; equivalence: two one-sided tests (Schuirmann 1987), {equivalence.method}"
+    return SequentialPlan(stages=cand, baseline_stages=base, worse=worse, equivalence=equivalence, method=method)
+
+
+def check_plan(plan: object) -> SequentialPlan:
+    if not isinstance(plan, SequentialPlan):
+        raise TypeError(f"`plan` must be a SequentialPlan from sequential_plan(), got {type(plan).__name__}")
+    return plan
