@@ -3,8 +3,12 @@
 With ``[check] stages = [5, 10, 15, 20]`` (or ``verify --stages 5,10,15,20``) verification
 trains the first 5 seeds of the manifest's seed plan, looks, and trains the next 5 only if the
 look decided nothing; it stops at the first look where a metric is worse under the gate's rule
-(the gate fails), where every metric is equivalent within its margin (the gate passes), or at
-the last stage (the fixed gate's outcomes without its fixed-alpha "worse" test, see below).
+(the gate fails), where every metric is equivalent within its margin or past its futility
+boundary (the gate passes), or at the last stage (the fixed gate's outcomes without its
+fixed-alpha "worse" test, see below). A futility stop (``[check] stage_futility``, a non-binding
+beta-spending boundary, :mod:`harness.stats.sequential_design`) says that a drop one margin beyond
+the tolerated one is ruled out, so "worse" can no longer be expected: a weaker claim than
+equivalence, and reported apart from it.
 "Worse" follows ``[check] rule`` as the fixed gate does: with the default
 ``drop-beyond-margin`` a look tests ``H0: drop <= margin`` (the sequential test's ``shift`` is
 the margin), with ``any-drop`` it tests ``H0: no drop``; the other two rules combine a test with
@@ -16,7 +20,9 @@ design applied by the significance level approach; ``docs/statistics.md``). Acro
 "worse" question is one family: each of the ``m`` metrics gets its own design at ``alpha / m``
 (Bonferroni at every look), so the chance that an unchanged candidate is called worse on any
 metric at any look is at most ``alpha``. Stopping for equivalence needs every metric equivalent
-at the same look; that is an intersection-union test (Berger 1982) and needs no split.
+at the same look; that is an intersection-union test (Berger 1982) and needs no split. A futility
+stop needs every metric equivalent or futile at the same look; each metric's futility spend bounds
+the power lost on that metric, and futility never raises the false-alarm rate (non-binding).
 
 At the last stage a metric that crossed neither boundary is not tested for "worse" again at the
 fixed ``alpha``: the design has spent that error already, and a second test would add false
@@ -77,8 +83,8 @@ class StagePlan:
     alpha, alpha_metric
         The family's one-sided false-alarm rate and each metric's share of it (``alpha / m``).
     sequential
-        The group-sequential plan of one metric (boundaries of "worse" at ``alpha_metric`` and of
-        each equivalence half at ``alpha``).
+        The group-sequential plan of one metric (boundaries of "worse" at ``alpha_metric``, of
+        each equivalence half at ``alpha`` and of futility at the policy's ``stage_futility``).
     rule
         The gate rule that says what "worse" is (one of :data:`STAGED_RULES`).
     """
@@ -104,7 +110,16 @@ class StagePlan:
                 f"baseline seeds; {self.design} boundaries; rule {self.rule} "
                 f"({DROP_RULES[self.rule].fails_when}) at alpha {self.alpha:g} split over "
                 f"{len(self.metrics)} metric{'s' if len(self.metrics) != 1 else ''} (Bonferroni, "
-                f"{self.alpha_metric:.3g} each); equivalence needs every metric inside its margin at one look")
+                f"{self.alpha_metric:.3g} each); equivalence needs every metric inside its margin at one look"
+                + self._futility_reading)
+
+    @property
+    def _futility_reading(self) -> str:
+        fut = self.sequential.futility
+        if fut is None:
+            return "; no futility stop"
+        return (f"; futility (non-binding, {fut.kind}, spend {fut.alpha:g}) when every metric rules out a drop of "
+                f"one margin beyond the tolerated one at one look")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -112,7 +127,8 @@ class Stage:
     """One look: the seeds it used, each metric's look (in ``StagePlan.metrics`` order), the decision.
 
     ``decision`` is ``"worse"`` (a metric crossed its "worse" boundary), ``"equivalent"`` (every
-    metric crossed its equivalence boundaries), ``"continue"`` or ``"final"``; ``trained`` and
+    metric crossed its equivalence boundaries), ``"futility"`` (every metric crossed its
+    equivalence or its futility boundaries, not all equivalence), ``"continue"`` or ``"final"``; ``trained`` and
     ``reused`` count this stage's new seeds by where they came from; ``seconds`` is its wall time.
     """
 
@@ -128,7 +144,8 @@ class Stage:
 
 @dataclasses.dataclass(frozen=True, slots=True)
 class MetricOutcome:
-    """A metric's verdict when the gate stopped: ``worse``, ``equivalent``, ``better``,
+    """A metric's verdict when the gate stopped: ``worse``, ``equivalent``, ``not-worse`` (futility
+    stop: a drop one margin beyond the tolerated one is ruled out; not equivalence), ``better``,
     ``inconclusive`` (last stage, neither boundary) or ``undecided`` (another metric stopped the gate).
 
     ``look`` is the metric's last look; ``pvalue_better`` the one-sided Welch p-value of
@@ -149,6 +166,10 @@ class MetricOutcome:
                     f"{lk.nominal_worse:.3g})")
         elif self.verdict == "better":
             what = f"significantly better at the last stage (Welch p = {self.pvalue_better:.3g})"
+        elif self.verdict == "not-worse":
+            what = (f"stopped for futility at stage {lk.look}: a drop of {lk.shift + lk.margin:.4g} or more is ruled "
+                    f"out (Welch p = {lk.pvalue_futility:.3g} below the futility boundary {lk.nominal_futility:.3g}), "
+                    f"so a drop beyond {lk.shift:.4g} can no longer be shown; this is not a proof of equivalence")
         else:
             what = {
                 "equivalent": f"equivalent within ±{lk.margin:.4g} at stage {lk.look}",
@@ -204,6 +225,8 @@ class StagedVerdict:
             return f"{', '.join(names)} crossed the 'worse' boundary at {where}"
         if last.decision == "equivalent":
             return f"every metric crossed its equivalence boundaries at {where}"
+        if last.decision == "futility":
+            return f"every metric crossed its futility or equivalence boundaries at {where} (futility: not equivalence)"
         return f"the last stage was reached without a decision at {where}"
 
     @property
@@ -299,7 +322,8 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, scale: GateSca
     margins = {m: scale.margin(m) for m in metrics}
     alpha_metric = policy.alpha / len(metrics)
     plan = stats.sequential_plan(stages, baseline_stages=(n_base,) * len(stages), alpha=alpha_metric,
-                                 alpha_equivalence=policy.alpha, kind=policy.stage_design)
+                                 alpha_equivalence=policy.alpha, kind=policy.stage_design,
+                                 futility=policy.stage_futility, futility_kind=policy.stage_futility_design)
     return StagePlan(stages=stages, baseline_seeds=n_base, fixed_seeds=count, metrics=metrics, margins=margins,
                      shifts={m: _shift(policy.rule, margins[m]) for m in metrics}, alpha=policy.alpha,
                      alpha_metric=alpha_metric, sequential=plan, rule=policy.rule)
@@ -311,6 +335,8 @@ def _stage_decision(looks: tuple[SequentialLook, ...]) -> str:
         return "worse"
     if all(d == "equivalent" for d in decisions):
         return "equivalent"
+    if all(d in ("equivalent", "futility") for d in decisions):
+        return "futility"
     return "final" if looks[0].final else "continue"
 
 
@@ -318,8 +344,10 @@ def _outcome(plan: StagePlan, metric: str, look: SequentialLook, stage_decision:
              cand: np.ndarray, base: np.ndarray) -> MetricOutcome:
     if look.decision == "worse":
         return MetricOutcome(metric, "worse", look, None)
-    if look.decision == "equivalent" and stage_decision in ("equivalent", "final"):
+    if look.decision == "equivalent" and stage_decision in ("equivalent", "futility", "final"):
         return MetricOutcome(metric, "equivalent", look, None)
+    if look.decision == "futility" and stage_decision == "futility":
+        return MetricOutcome(metric, "not-worse", look, None)
     if stage_decision != "final":
         return MetricOutcome(metric, "undecided", look, None)
     better_side = "greater" if METRICS[metric].higher_is_better else "less"

@@ -67,10 +67,12 @@ RETIRED_KEYS = {
 DEFAULT_MARGIN_SHARE = 0.1
 
 
-def _check_stages(stages: object, design: object) -> None:
+def _check_stages(stages: object, design: object, futility: object, futility_design: object) -> None:
     """The staged gate's own checks; those against the manifest and baseline are in ``harness.gate.staged``."""
-    if design not in BOUNDARY_KINDS:
-        raise ConfigError(f"unknown design {design!r}.{did_you_mean(str(design), BOUNDARY_KINDS)}", key="stage_design")
+    for key, value in (("stage_design", design), ("stage_futility_design", futility_design)):
+        if value not in BOUNDARY_KINDS:
+            raise ConfigError(f"unknown design {value!r}.{did_you_mean(str(value), BOUNDARY_KINDS)}", key=key)
+    check_number(futility, "stage_futility", low=0, high=0.5, open_high=True)
     if stages is None:
         return
     fix = "give strictly increasing seed counts of at least 2, e.g. [5, 10, 15, 20]"
@@ -133,6 +135,12 @@ class GatePolicy:
         on every seed. See :mod:`harness.gate.staged`.
     stage_design
         The staged gate's boundaries, one of ``harness.stats.boundaries.BOUNDARY_KINDS``.
+    stage_futility
+        The staged gate's futility spend: the largest chance that a candidate whose drop is one
+        margin beyond the tolerated one is stopped early as "no drop beyond the margin can be
+        shown" (the power the futility stop may cost against that drop); 0 turns the stop off.
+    stage_futility_design
+        The futility boundary's spending design, one of ``BOUNDARY_KINDS``.
     """
 
     metrics: tuple[str, ...] = ("final", "auc")
@@ -152,6 +160,8 @@ class GatePolicy:
     permutations: int = 2000
     stages: tuple[int, ...] | None = None
     stage_design: str = "obrien-fleming-spending"
+    stage_futility: float = 0.05
+    stage_futility_design: str = "pocock-spending"
 
     def __post_init__(self) -> None:
         if isinstance(self.metrics, str) or not isinstance(self.metrics, (tuple, list)) or not self.metrics:
@@ -188,7 +198,7 @@ class GatePolicy:
         check_number(self.final_share, "final_share", low=0, high=1, open_low=True)
         check_number(self.power, "power", low=0, high=1, open_low=True, open_high=True)
         check_number(self.permutations, "permutations", low=99, integer=True)
-        _check_stages(self.stages, self.stage_design)
+        _check_stages(self.stages, self.stage_design, self.stage_futility, self.stage_futility_design)
         if self.stages is not None:
             object.__setattr__(self, "stages", tuple(self.stages))
 

@@ -28,10 +28,10 @@ __all__ = ["STAGE_HEADER", "STAGED_SCHEMA", "StagedReport", "render_staged_junit
 STAGED_SCHEMA = "rlharness.staged-verdict/1"
 
 STAGE_HEADER = ("stage", "seeds (cand/base)", "metric", "difference [repeated interval]",
-                "worse: p vs boundary", "equivalent: p vs boundary", "decision")
+                "worse: p vs boundary", "equivalent: p vs boundary", "futility: p vs boundary", "decision")
 
-_STYLE = {"worse": "bold red", "equivalent": "green", "continue": "yellow", "final": "yellow",
-          "better": "cyan", "inconclusive": "yellow", "undecided": "dim"}
+_STYLE = {"worse": "bold red", "equivalent": "green", "futility": "green", "not-worse": "green",
+          "continue": "yellow", "final": "yellow", "better": "cyan", "inconclusive": "yellow", "undecided": "dim"}
 
 
 def stage_rows(verdict: StagedVerdict) -> list[tuple[str, ...]]:
@@ -44,6 +44,7 @@ def stage_rows(verdict: StagedVerdict) -> list[tuple[str, ...]]:
                 f"{lk.estimate:+.3g} [{num(lk.interval.low, 3)}, {num(lk.interval.high, 3)}]",
                 f"{lk.pvalue_worse:.3g} vs {lk.nominal_worse:.3g}",
                 f"{lk.pvalue_equivalence:.3g} vs {lk.nominal_equivalence:.3g}",
+                "-" if lk.pvalue_futility is None else f"{lk.pvalue_futility:.3g} vs {lk.nominal_futility:.3g}",
                 lk.decision,
             ))
     return rows
@@ -63,7 +64,8 @@ def _notes(v: StagedVerdict) -> list[str]:
     return [
         "difference = candidate - baseline; its repeated interval holds over all stages at once; a stage rejects "
         "when its Welch p-value is below the stage's boundary (significance level approach).",
-        f"margins: {margins}; drop tolerated before 'worse': {shifts}.",
+        f"margins: {margins}; drop tolerated before 'worse': {shifts}; futility rules out a drop of one margin "
+        "beyond the tolerated one (a futility pass is no proof of equivalence).",
         f"method: {v.plan.sequential.method}.",
     ]
 
@@ -147,7 +149,10 @@ def staged_json(verdict: StagedVerdict) -> dict:
                  "family": "Bonferroni split of alpha over metrics for 'worse'; equivalence needs every metric",
                  "metrics": list(p.metrics), "margins": dict(p.margins), "shifts": dict(p.shifts),
                  "worse_nominal": list(p.sequential.worse.nominal),
-                 "equivalence_nominal": list(p.sequential.equivalence.nominal), "method": p.sequential.method},
+                 "equivalence_nominal": list(p.sequential.equivalence.nominal),
+                 "futility_nominal": None if p.sequential.futility is None else list(p.sequential.futility.nominal),
+                 "futility_spend": 0.0 if p.sequential.futility is None else p.sequential.futility.alpha,
+                 "method": p.sequential.method},
         "stages": [{"look": s.look, "candidate_seeds": s.n_candidate, "baseline_seeds": s.n_baseline,
                     "decision": s.decision, "trained": s.trained, "reused": s.reused, "seconds": s.seconds,
                     "metrics": {m: _look(lk) for m, lk in zip(p.metrics, s.looks, strict=True)}}

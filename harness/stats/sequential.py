@@ -1,10 +1,16 @@
 """A group-sequential comparison of a candidate with a baseline: train seeds in stages, stop early.
 
-Every look asks two one-sided questions, each with its own alpha spent over the
-looks: **worse** (``H0: drop <= shift``, Welch 1947 one-sided t; false-alarm rate
-``alpha``) and **equivalent** (two one-sided tests against ``±margin``,
-Schuirmann 1987; by the intersection-union principle the rate of declaring
-equivalence when ``|difference| >= margin`` is at most ``alpha_equivalence``).
+Every look asks up to three one-sided questions, each with its own error spent
+over the looks: **worse** (``H0: drop <= shift``, Welch 1947 one-sided t;
+false-alarm rate ``alpha``), **equivalent** (two one-sided tests against
+``±margin``, Schuirmann 1987; by the intersection-union principle the rate of
+declaring equivalence when ``|difference| >= margin`` is at most
+``alpha_equivalence``) and, at the interim looks of a plan with a futility spend,
+**futility** (the drop is significantly smaller than ``shift + margin``, so a
+drop beyond the tolerated one can no longer be expected to be shown;
+:mod:`harness.stats.sequential_design`). A futility stop is weaker than
+equivalence: it bounds the drop from above by ``shift + margin``, not the
+difference within ``±margin``.
 
 Boundaries are computed on the normal scale (:mod:`harness.stats.boundaries`) and
 applied to Welch's t by the *significance level approach* (Pocock 1977;
@@ -37,10 +43,10 @@ __all__ = [
     "sequential_test",
 ]
 
-Decision = Literal["worse", "equivalent", "continue", "final"]
+Decision = Literal["worse", "equivalent", "futility", "continue", "final"]
 
 #: The outcomes of a look, in the order a look checks them.
-DECISIONS: tuple[str, ...] = ("worse", "equivalent", "continue", "final")
+DECISIONS: tuple[str, ...] = ("worse", "equivalent", "futility", "continue", "final")
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -71,11 +77,18 @@ class SequentialLook:
     pvalue_equivalence, nominal_equivalence, critical_equivalence
         TOST p-value (the larger of the two one-sided p-values) and the
         equivalence boundary as a nominal level and as a t critical value.
+    pvalue_futility, nominal_futility
+        One-sided Welch p-value of ``H0: drop >= shift + margin`` and the
+        futility boundary as a nominal level; None where the plan has no
+        futility boundary (no futility spend, or the last look).
     shift, margin
-        The null drop of the "worse" test and the equivalence half-width.
+        The null drop of the "worse" test and the equivalence half-width; the
+        futility alternative is a drop of ``shift + margin``.
     decision
-        ``"worse"``, ``"equivalent"``, ``"continue"`` (more seeds are planned) or
-        ``"final"`` (the last look crossed neither boundary).
+        ``"worse"``, ``"equivalent"``, ``"futility"`` (a drop of ``shift + margin``
+        or more is ruled out: "worse" can no longer be expected; not equivalence),
+        ``"continue"`` (more seeds are planned) or ``"final"`` (the last look
+        crossed neither boundary).
     reading
         One sentence.
     """
@@ -95,6 +108,8 @@ class SequentialLook:
     pvalue_equivalence: float
     nominal_equivalence: float
     critical_equivalence: float
+    pvalue_futility: float | None
+    nominal_futility: float | None
     shift: float
     margin: float
     decision: Decision
@@ -182,10 +197,16 @@ def _look(base: np.ndarray, cand: np.ndarray, plan: SequentialPlan, look: int,
     half = crit_e * se
     interval = ConfidenceInterval(estimate - half, estimate + half)
     final = look == plan.looks
+    p_fut = nom_f = None
+    if plan.futility is not None and not final:
+        p_fut = _t_sf(_ratio(shift + margin - drop, se), df)  # H0: drop >= shift + margin
+        nom_f = plan.futility.nominal[k]
     if p_worse < nom_w:
         decision = "worse"
     elif p_equiv < nom_e:
         decision = "equivalent"
+    elif p_fut is not None and p_fut < nom_f:
+        decision = "futility"
     else:
         decision = "final" if final else "continue"
     result = SequentialLook(
@@ -193,7 +214,7 @@ def _look(base: np.ndarray, cand: np.ndarray, plan: SequentialPlan, look: int,
         estimate=estimate, interval=interval, standard_error=se, df=df, statistic=statistic,
         pvalue_worse=p_worse, nominal_worse=nom_w, critical_worse=crit_w,
         pvalue_equivalence=p_equiv, nominal_equivalence=nom_e, critical_equivalence=crit_e,
-        shift=shift, margin=margin, decision=decision, reading="",
+        pvalue_futility=p_fut, nominal_futility=nom_f, shift=shift, margin=margin, decision=decision, reading="",
     )  # fmt: skip
     return dataclasses.replace(result, reading=_look_reading(result, plan))
 
@@ -205,14 +226,19 @@ def _look_reading(r: SequentialLook, plan: SequentialPlan) -> str:
         outcome = {
             "worse": "the candidate is worse: stop",
             "equivalent": "equivalent within the margin: stop",
+            "futility": f"a drop of {fmt(r.shift + r.margin)} or more is ruled out, so a drop beyond "
+                        f"{fmt(r.shift)} can no longer be expected to be shown: stop for futility (not equivalence)",
             "final": "neither boundary crossed at the last look",
         }[r.decision]
+    futility = "" if r.pvalue_futility is None else (
+        f"; drop below {fmt(r.shift + r.margin)}: Welch {fmt_p(r.pvalue_futility)} vs futility boundary "
+        f"{fmt(r.nominal_futility)}")
     return (
         f"Look {r.look} of {plan.looks} ({r.n_candidate} candidate vs {r.n_baseline} baseline seeds): "
         f"candidate - baseline = {fmt(r.estimate)}, repeated {fmt(100 * (1 - 2 * r.nominal_equivalence))}% "
         f"CI {r.interval}; worse beyond {fmt(r.shift)}: Welch {fmt_p(r.pvalue_worse)} vs boundary "
         f"{fmt(r.nominal_worse)} (t >= {fmt(r.critical_worse)}); within ±{fmt(r.margin)}: TOST "
-        f"{fmt_p(r.pvalue_equivalence)} vs {fmt(r.nominal_equivalence)}: {outcome}."
+        f"{fmt_p(r.pvalue_equivalence)} vs {fmt(r.nominal_equivalence)}{futility}: {outcome}."
     )
 
 
@@ -274,8 +300,9 @@ def sequential_look(
 
     Notes
     -----
-    "worse" is checked first, then equivalence, each by the significance level
-    approach (see the module notes). Constant groups give the degenerate result
+    "worse" is checked first, then equivalence, then futility (interim looks of
+    a plan with a futility spend), each by the significance level approach (see
+    the module notes). Constant groups give the degenerate result
     of :func:`~harness.stats.welch_test` (standard error 0, the difference exact).
 
     References
@@ -327,8 +354,10 @@ def sequential_test(
     Notes
     -----
     The false-alarm rate of "worse" is at most ``plan.worse.alpha`` because the
-    looks follow a group-sequential design and stopping for equivalence only
-    removes chances to cross; likewise for equivalence. A ``"final"`` decision
+    looks follow a group-sequential design and stopping for equivalence or
+    futility only removes chances to cross (the futility boundary is
+    non-binding: "worse" boundaries are computed without it); likewise for
+    equivalence. A ``"final"`` decision
     means neither boundary was crossed at the last look: a caller that then
     applies a fixed-sample verdict must not turn it into "worse" at the
     fixed ``alpha`` (that would add to the false alarms already spent).
@@ -382,6 +411,8 @@ def _result(looks, plan, needed, have_b, have_c) -> SequentialResult:
         because = {
             "worse": f"the 'worse' boundary was crossed at look {last.look}",
             "equivalent": f"the equivalence boundaries were crossed at look {last.look}",
+            "futility": f"the futility boundary was crossed at look {last.look} (a drop of "
+                        f"{fmt(last.shift + last.margin)} or more is ruled out; this is not equivalence)",
             "final": f"the last look ({last.look}) was reached without crossing a boundary",
         }[decision]
     reading = (
