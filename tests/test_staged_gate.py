@@ -96,6 +96,44 @@ def test_unchanged_rerun_stops_early_as_equivalent(at):
     assert suite.get("failures") == "0" and {c.get("name") for c in suite.iter("testcase")} >= {"stage 1", "check final"}
 
 
+def _welch(cand: np.ndarray, base: np.ndarray, shift: float, alternative: str) -> float:
+    return float(sps.ttest_ind(cand + shift, base, equal_var=False, alternative=alternative).pvalue)
+
+
+def test_futility_stop_passes_and_is_reported_apart_from_equivalence(at):
+    # A margin for which the first look (3 of 6 seeds) cannot show equivalence but rules out a drop of two
+    # margins (drop-beyond-margin: shift = margin). The thresholds come from scipy.stats: TOST against the
+    # O'Brien–Fleming-type spending at information 2/3 (Lan & DeMets 1983), and futility at the one interim
+    # look, which spends all of stage_futility = 0.05 there (a one-look design is the fixed test).
+    base = np.array([final_return(r.curve, fraction=0.1) for r in read_baseline(at / "baselines/lake.json").runs])
+    cand = base[:3]  # an unchanged rerun reproduces the baseline's first seeds bitwise
+    nominal_eq = 2 - 2 * sps.norm.cdf(sps.norm.ppf(1 - 0.05 / 2) / math.sqrt(2 / 3))
+    window = [m for m in np.linspace(0.005, 0.5, 200)
+              if max(_welch(cand, base, m, "greater"), _welch(cand, base, -m, "less")) >= 1.05 * nominal_eq
+              and _welch(cand, base, 2 * m, "greater") < 0.95 * 0.05]
+    assert window, "no margin separates futility from equivalence on this baseline"
+    margin = f"{window[len(window) // 2]:.6g}"
+    code, out = cli("verify", "lake.toml", "--workers", "2", "--margin", margin, "--json", "out/fut.json",
+                    "--markdown", "out/fut.md")
+    assert code == ExitCode.OK, out
+    report = json.loads((at / "out/fut.json").read_text())
+    assert report["decision"] == "futility" and report["seeds"]["saved"] == 3
+    assert report["outcomes"][0]["verdict"] == "not-worse"
+    look = report["stages"][0]["metrics"]["final"]
+    assert look["nominal_futility"] == pytest.approx(0.05, rel=1e-6)
+    assert look["pvalue_futility"] == pytest.approx(_welch(cand, base, 2 * float(margin), "greater"), rel=1e-9)
+    assert "crossed its futility or equivalence boundaries at stage 1 of 2 (3 candidate seeds) (futility: not " \
+           "equivalence)" in out
+    assert "this is not a proof of equivalence" in out and "equivalent within" not in out
+    assert "| futility: p vs boundary |" in (at / "out/fut.md").read_text()
+    # stage_futility = 0 turns the stop off: the same margin then runs to the last stage.
+    (at / "nofut.toml").write_text(lake(check=CHECK + "stage_futility = 0\n"))
+    code, out = cli("verify", "nofut.toml", "--workers", "2", "--margin", margin, "--json", "out/nofut.json")
+    report = json.loads((at / "out/nofut.json").read_text())
+    assert code == ExitCode.OK and report["plan"]["futility_nominal"] is None, out
+    assert report["stages"][0]["decision"] == "continue"
+
+
 def test_broken_trainer_stops_early_as_worse_and_a_rerun_reuses_its_seeds(at):
     code, out = cli("verify", "broken.toml", "--workers", "2", "--results", "results/broken", "--junit",
                     "out/broken.xml", "--json", "out/broken.json")
@@ -160,6 +198,9 @@ def _snapshot(folder: Path) -> dict[str, bytes]:
      "bad.toml [check.stages]: the last stage must be the manifest's seed count ([seeds] count = 6), got [3, 5]"),
     (lake(check=CHECK.replace("[3, 6]", "[6]")), (), "bad.toml [check.stages]: needs at least 2 stages"),
     (lake(check=CHECK + 'stage_design = "pocok"\n'), (), "[check.stage_design]: unknown design 'pocok'"),
+    (lake(check=CHECK + 'stage_futility = 0.7\n'), (), "[check.stage_futility]: must be a number in [0, 0.5), got 0.7"),
+    (lake(check=CHECK + 'stage_futility_design = "pocok"\n'), (),
+     "[check.stage_futility_design]: unknown design 'pocok'"),
     (lake(), ("--stages", "6,3"), "--stages: must be strictly increasing, got [6, 3]"),
     (lake(), ("--stages", "3,six"), "--stages: must be comma-separated seed counts"),
     (lake(), ("--stages", "2,4"), "--stages: the last stage must be the manifest's seed count"),

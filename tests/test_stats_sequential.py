@@ -10,7 +10,10 @@ Sources of the check values, named beside each check:
   and, for the first look, by the closed form Phi^-1(1 - alpha*(t_1)).
 - GroupSeq package vignette "Compute bounds" (CRAN): one-sided 0.05, three looks, O'Brien–Fleming
   type spending spends 0.069% at the first look, upper bound about 3.2.
-- scipy.stats (reference library): Welch p-values, t quantiles, the normal quantile.
+- scipy.stats (reference library): Welch p-values, t quantiles, the normal quantile; and
+  scipy.stats.multivariate_normal (Genz's algorithm) for the crossing probabilities of the futility
+  boundaries under the canonical joint distribution (Jennison & Turnbull 2000, §3.1), an
+  integration independent of the harness's recursion (Armitage, McPherson & Rowe 1969).
 """
 
 from __future__ import annotations
@@ -275,6 +278,11 @@ def test_baseline_recorded_in_full_sets_the_information_fractions():
         (dict(stages=(5, 10), equivalence_kind="x"), r"`equivalence_kind` must be one of"),
         (dict(stages=(5, 10), baseline_stages=(20,)), r"`baseline_stages` must have one entry per look"),
         (dict(stages=(5, 10), baseline_stages=(20, 10)), r"`baseline_stages` must be non-decreasing"),
+        (dict(stages=(5, 10), futility=0.5), r"`futility` is a one-sided level"),
+        (dict(stages=(5, 10), futility=-0.1), r"`futility` must lie strictly between 0 and 1"),
+        (dict(stages=(5, 10), futility=True), r"`futility` must be a number"),
+        (dict(stages=(5,), futility=0.05), r"`futility` needs at least 2 looks"),
+        (dict(stages=(5, 10), futility=0.05, futility_kind="x"), r"`futility_kind` must be one of"),
     ],
 )
 def test_sequential_plan_iv(kwargs, match):
@@ -313,7 +321,8 @@ def test_sequential_boundaries_iv():
         exit_probabilities([2.0, 2.0], [1.0, 2.0])
 
 
-@pytest.mark.parametrize("name", ["harness.stats.boundaries", "harness.stats.sequential"])
+@pytest.mark.parametrize("name", ["harness.stats.boundaries", "harness.stats.sequential",
+                                  "harness.stats.sequential_design"])
 def test_docstring_examples(name):
     import doctest
     import importlib
@@ -340,3 +349,81 @@ def test_decisions_do_not_depend_on_units(seed, offset, scale, drop):
     assert [lk.decision for lk in one.looks] == [lk.decision for lk in two.looks]
     assert [lk.pvalue_worse for lk in one.looks] == pytest.approx([lk.pvalue_worse for lk in two.looks], abs=1e-6)
     assert two.estimate == pytest.approx(scale * one.estimate, rel=1e-6, abs=1e-6 * scale)
+
+
+# --------------------------------------------------------------------------- futility (non-binding, beta spending)
+
+
+def test_futility_with_one_interim_look_is_the_fixed_test_of_the_alternative():
+    # One interim look: the futility boundary is the fixed one-sided test of "drop >= shift + margin" at
+    # the spend, z_{1 - spend} (scipy.stats.norm), whatever the spending function; no futility at the last look.
+    for kind in ("obrien-fleming-spending", "pocock-spending"):
+        plan = sequential_plan((5, 10), futility=0.05, futility_kind=kind)
+        assert plan.futility.critical == pytest.approx((sps.norm.isf(0.05),), abs=1e-7)
+    look = sequential_look([0.0, 1, 2, 3, 4] * 2, [0.0, 1, 2, 3, 4] * 2, plan=plan, look=2, margin=1.0)
+    assert look.pvalue_futility is None and look.nominal_futility is None
+    assert sequential_plan((5, 10)).futility is None  # no spend, no futility boundary
+
+
+@pytest.mark.parametrize("kind", ["obrien-fleming-spending", "pocock-spending"])
+def test_futility_spend_matches_multivariate_normal(kind):
+    # The futility boundaries of stages 5, 10, 15, 20 against a baseline of 20 seeds spend
+    # spend * f(t_k) / f(t_3) by interim look k (Lan & DeMets 1983 spending, normalised to the interim
+    # looks). Reference: the probability that the canonical joint normal (corr sqrt(t_i / t_j),
+    # Jennison & Turnbull 2000, §3.1) of the interim looks stays below the boundaries, by
+    # scipy.stats.multivariate_normal.cdf (Genz's algorithm), independent of the recursion.
+    plan = sequential_plan((5, 10, 15, 20), baseline_stages=(20,) * 4, futility=0.05, futility_kind=kind)
+    b = plan.futility
+    info = np.array([1 / (1 / 20 + 1 / n) for n in (5, 10, 15)])
+    assert b.fractions == pytest.approx(info / info[-1])
+    t = np.array(b.fractions)
+    target = spending_function(kind, t, 0.05)
+    for k in range(1, 4):
+        cov = np.sqrt(np.minimum.outer(t[:k], t[:k]) / np.maximum.outer(t[:k], t[:k]))
+        stay = sps.multivariate_normal(mean=np.zeros(k), cov=cov).cdf(np.array(b.critical[:k]))
+        assert 1.0 - stay == pytest.approx(target[k - 1], abs=2e-5)
+
+
+def test_futility_look_matches_scipy():
+    # The futility p-value is Welch's one-sided test of H0: drop >= shift + margin (scipy.stats.ttest_ind
+    # on the candidate shifted up by shift + margin, alternative "greater"); the look stops for futility
+    # when it is below the boundary's nominal level and neither "worse" nor equivalence was shown.
+    plan = sequential_plan((5, 10, 15, 20), futility=0.05)
+    rng = np.random.default_rng(np.random.SeedSequence(21))
+    base, cand = rng.normal(0, 1, 10), rng.normal(0, 1, 10)
+    look = sequential_look(base, cand, plan=plan, look=2, margin=1.0, shift=1.0)
+    ref = sps.ttest_ind(cand + 2.0, base, equal_var=False, alternative="greater").pvalue
+    assert look.pvalue_futility == pytest.approx(ref, rel=1e-9)
+    assert look.nominal_futility == plan.futility.nominal[1]
+    assert ref < plan.futility.nominal[1] < look.pvalue_equivalence  # here: futility, not equivalence
+    assert look.decision == "futility" and "stop for futility (not equivalence)" in look.reading
+    lower = sequential_look(base, cand, plan=plan, look=2, margin=1.0, shift=1.0, higher_is_better=False)
+    assert lower.pvalue_futility == pytest.approx(
+        sps.ttest_ind(cand - 2.0, base, equal_var=False, alternative="less").pvalue, rel=1e-9)
+
+
+def test_futility_is_non_binding_and_bounds_the_power_lost_by_simulation():
+    # Seeded, small (about two seconds). Non-binding (Pampallona, Tsiatis & Kim 2001): the "worse"
+    # boundaries ignore futility, so on every simulated path a "worse" with the futility stop is also a
+    # "worse" without it (exact, path by path), and at a drop equal to the tolerated one (the null's
+    # edge) the false-alarm rate stays <= alpha. At a drop of shift + margin, the futility stops are at
+    # most the spend and the power lost at most the spend, within 3 Monte Carlo errors; an unchanged
+    # candidate stops early (at least 30% of the seeds saved).
+    with_f = sequential_plan((5, 10, 15, 20), futility=0.05, futility_kind="pocock-spending")
+    without = sequential_plan((5, 10, 15, 20))
+    rng = np.random.default_rng(np.random.SeedSequence(22))
+    reps = 400
+    band = 3 * math.sqrt(0.05 * 0.95 / reps)
+    for drop in (0.0, 1.0, 2.0):  # shift = margin = 1 (drop-beyond-margin): A/A, the null's edge, the alternative
+        runs = [(rng.normal(0, 1, 20), rng.normal(-drop, 1, 20)) for _ in range(reps)]
+        a = [sequential_test(b, c, plan=with_f, margin=1.0, shift=1.0) for b, c in runs]
+        z = [sequential_test(b, c, plan=without, margin=1.0, shift=1.0) for b, c in runs]
+        assert all(y.decision == "worse" for x, y in zip(a, z) if x.decision == "worse")
+        worse = sum(x.decision == "worse" for x in a) / reps
+        if drop == 0.0:
+            assert sum(x.seeds_used[1] for x in a) / reps <= 14.0
+        if drop == 1.0:
+            assert worse <= 0.05 + band
+        if drop == 2.0:
+            assert sum(x.decision == "futility" for x in a) / reps <= 0.05 + band
+            assert worse >= sum(y.decision == "worse" for y in z) / reps - 0.05 - band
