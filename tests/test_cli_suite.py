@@ -120,6 +120,75 @@ def test_broken_task_fails_the_suite_alone(at):
     assert suite[smallest]["pvalue_worse"] == pytest.approx(2 * single[smallest]["pvalue_worse"])
 
 
+STAGED = """
+    [check]
+    metrics = ["final"]
+    margin = 0.3
+    stages = [3, 6]
+    """
+
+
+def test_staged_member_runs_in_stages_inside_the_suite(at):
+    # lake-a staged (3 then 6 seeds), lake-b fixed; unchanged reruns. Bonferroni over the 2 tasks: each at
+    # alpha / 2 = 0.025. The staged task's first boundary is the Lan & DeMets (1983) O'Brien–Fleming-type
+    # spending at 0.025 and information 2/3 (3 candidate vs 6 baseline seeds): 2 - 2 Phi(z_{0.0125} / sqrt(2/3)),
+    # computed here with scipy.stats.norm.
+    from scipy import stats as sps
+
+    (at / "staged").mkdir(exist_ok=True)
+    (at / "staged/a.toml").write_text(manifest_text("lake-a", extra=STAGED))
+    (at / "staged/b.toml").write_text(manifest_text("lake-b", step_size=0.2))
+    code, out = cli(at, "verify", "staged", "--workers", "2", "--results", "results-staged", "--json", "out/st.json",
+                    "--junit", "out/st.xml", "--markdown", "out/st.md")
+    assert code == ExitCode.OK, out
+    flat = " ".join(out.split())
+    assert "running 9 seeds of 2 tasks (lake-a, lake-b) in one pool" in flat  # round 1: 3 staged + 6 fixed
+    assert "lake-a: stage 1: 3 seeds" in flat
+    assert "Bonferroni over the 2 tasks (3 checks) at alpha 0.05: each of the 1 staged task at 0.025" in flat
+    report = json.loads((at / "out/st.json").read_text())
+    staged, fixed = report["tasks"]
+    assert staged["schema"] == "rlharness.staged-verdict/1" and fixed["schema"] == "rlharness.verdict/1"
+    assert report["family"]["alpha_per_task"] == 0.025 and report["family"]["checks"] == 3
+    assert staged["plan"]["alpha"] == 0.025 and fixed["policy"]["alpha"] == 0.025
+    assert staged["seeds"]["used"] == 3 and staged["decision"] in ("equivalent", "futility")
+    spent = 2 - 2 * sps.norm.cdf(sps.norm.isf(0.025 / 2) / np.sqrt(2 / 3))
+    assert staged["stages"][0]["metrics"]["final"]["nominal_worse"] == pytest.approx(spent, rel=1e-6)
+    assert [t["manifest"] for t in report["aggregate"]["tasks"]] == ["lake-a", "lake-b"]
+    assert len(report["aggregate"]["tasks"][0]["candidate"]) == 3  # the staged task's seeds used
+    assert len(json.loads((at / "results-staged/lake-a/index.json").read_text())["runs"]) == 3
+    names = [s.get("name") for s in ET.parse(at / "out/st.xml").getroot()]
+    assert names == ["rlharness.verify.lake-a", "rlharness.verify.lake-b"]
+    assert "### 3. Stages" in (at / "out/st.md").read_text()
+    # --stages off: every member fixed, Holm over all checks again.
+    code, off = cli(at, "verify", "staged", "--workers", "2", "--results", "results-staged", "--stages", "off")
+    assert code == ExitCode.OK and "Holm (1979) over all" in " ".join(off.split()), off
+
+
+def test_broken_staged_member_stops_at_stage_one_and_fails_the_suite(at):
+    (at / "staged-broken").mkdir(exist_ok=True)
+    (at / "staged-broken/a.toml").write_text(manifest_text("lake-a"))
+    (at / "staged-broken/b.toml").write_text(manifest_text("lake-b", step_size=0.2, use="broken_rule:train",
+                                                           extra=STAGED))
+    (at / "staged-broken/broken_rule.py").write_text(BROKEN_RULE)
+    code, out = cli(at, "verify", "staged-broken", "--workers", "2", "--results", "results-sb", "--json", "out/sb.json")
+    assert code == ExitCode.GATE_FAILED, out
+    report = json.loads((at / "out/sb.json").read_text())
+    assert report["failing"] == ["lake-b"]
+    broken = report["tasks"][1]
+    assert broken["decision"] == "worse" and broken["seeds"]["used"] == 3
+    assert broken["seeds"]["trained_now"] + broken["seeds"]["reused"] == 3  # trained, or from the run cache
+
+
+def test_staged_member_with_a_bad_plan_exits_2_and_trains_nothing(at):
+    (at / "staged-bad").mkdir(exist_ok=True)
+    (at / "staged-bad/a.toml").write_text(manifest_text("lake-a", extra=STAGED.replace("[3, 6]", "[3, 5]")))
+    (at / "staged-bad/b.toml").write_text(manifest_text("lake-b", step_size=0.2))
+    code, out = cli(at, "verify", "staged-bad", "--workers", "2", "--results", "results-bad", "--fresh")
+    assert code == ExitCode.BAD_INPUT, out
+    assert "staged-bad/a.toml [check.stages]: the last stage must be the manifest's seed count" in " ".join(out.split())
+    assert not (at / "results-bad").exists()
+
+
 def test_run_trains_a_suite_in_one_pool(at):
     code, out = cli(at, "run", "suites/toys.toml", "--results", "results-run", "--workers", "2")
     assert code == ExitCode.OK, out
@@ -145,7 +214,7 @@ def test_run_trains_a_suite_in_one_pool(at):
         ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml"],
          r"baselines/x.json"),
         ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml", "--stages", "3,6"],
-         r"--stages: a suite trains every seed of every task in one pool"),
+         r"--stages: the members of a suite have their own seed counts, so one stage list cannot fit them all"),
         ({"a.toml": manifest_text("x"), "b.toml": manifest_text("y")}, ["a.toml", "b.toml", "--baseline-ref", "main"],
          r"--baseline-ref main: .* is not inside a git repository"),
     ],

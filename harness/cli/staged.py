@@ -23,7 +23,7 @@ from harness.gate.staged import Stage, StagedVerdict, plan_stages, staged_verify
 from harness.manifest.policy import GatePolicy
 from harness.stats.boundaries import BOUNDARY_KINDS
 
-__all__ = ["add_stage_arguments", "stage_policy", "verify_staged"]
+__all__ = ["add_stage_arguments", "first_seeds", "stage_line", "stage_policy", "verify_staged"]
 
 
 def add_stage_arguments(parser: argparse.ArgumentParser) -> None:
@@ -91,15 +91,21 @@ def _stored(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[
 
     folder = Path(args.results) if args.results else Path("results") / manifest.name
     results = read_results(folder)
-    records = tuple(sorted(results.records, key=lambda r: r.spec.index))
 
     def obtain(n: int) -> tuple[Any, dict[int, str]]:
-        return dataclasses.replace(results, records=records[:n]), {i: "resumed" for i in range(n)}
+        return first_seeds(results, n), {i: "resumed" for i in range(n)}
 
     return obtain, folder
 
 
-def _stage_line(verdict_plan: Any, stage: Stage) -> str:
+def first_seeds(results: Any, n: int | None) -> Any:
+    """A stored result set cut to its first ``n`` seeds in seed order (``None``: all), as a stage reads them."""
+    records = tuple(sorted(results.records, key=lambda r: r.spec.index))
+    return dataclasses.replace(results, records=records if n is None else records[:n])
+
+
+def stage_line(verdict_plan: Any, stage: Stage) -> str:
+    """One line of the live display: a stage's seeds, each metric's difference and decision."""
     parts = [f"{m} {lk.estimate:+.4g} [{lk.interval.low:.4g}, {lk.interval.high:.4g}] {lk.decision}"
              for m, lk in zip(verdict_plan.metrics, stage.looks, strict=True)]
     return (f"stage {stage.look}: {stage.n_candidate} seeds ({stage.trained} trained, {stage.reused} reused), "
@@ -116,7 +122,7 @@ def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, b
     obtain, folder = (_stored if args.no_run else _runner)(args, manifest, console)
     try:
         verdict = staged_verify(manifest, baseline, obtain, plan=plan, policy=policy, folder=str(folder),
-                                on_stage=lambda s: console.print(_stage_line(plan, s), highlight=False))
+                                on_stage=lambda s: console.print(stage_line(plan, s), highlight=False))
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED

@@ -10,6 +10,7 @@ cached and resumed per seed as for one manifest.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import os
 import tempfile
 import time
@@ -50,20 +51,20 @@ def _folders(args: argparse.Namespace, suite: Any) -> list[Path]:
 
 
 def _train(args: argparse.Namespace, suite: Any, folders: Sequence[Path], baselines: dict,
-           console: Console) -> tuple[Any, ...]:
-    """Every run of every task in one pool, with one progress display."""
+           console: Console, first: dict[str, int] | None = None) -> tuple[Any, ...]:
+    """Every run of every task in one pool, with one progress display (only the ``first`` seeds of a staged task)."""
     from harness.execute.suite import run_suite
     from harness.report.progress import SuiteProgress
 
     options = execution_options(args)
     if getattr(args, "fresh", False):
         options["use_cache"] = False
-    seeds = sum(len(m.seeds) for m in suite.manifests)
+    seeds = sum((first or {}).get(m.name, len(m.seeds)) for m in suite.manifests)
     console.print(f"running {seeds} seeds of {len(suite.manifests)} tasks ({', '.join(m.name for m in suite.manifests)}) "
                   f"in one pool; results in {folders[0].parent}/<task>/ ...", highlight=False, soft_wrap=True)
     try:
         with SuiteProgress(console) as progress:  # draws nothing when the console is not a terminal
-            return run_suite(suite.manifests, folders, baselines, on_event=progress, **options)
+            return run_suite(suite.manifests, folders, baselines, first=first, on_event=progress, **options)
     except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
         raise HarnessError(f"cannot run suite {suite.name}: {exc}") from None
 
@@ -149,6 +150,7 @@ def record_suite(args: argparse.Namespace, console: Console) -> ExitCode:
 def verify_suite_command(args: argparse.Namespace, console: Console,
                          policy_from_args: Callable[[Any, argparse.Namespace], Any]) -> ExitCode:
     """``rlharness verify`` over a suite: one family of checks, one verdict, one exit code."""
+    from harness.cli.staged import stage_policy
     from harness.gate.suite import SuiteMember, verify_suite
     from harness.gate.preflight import baseline_for, check_gate_policy
     from harness.manifest.suite import load_suite
@@ -156,14 +158,12 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
 
     _refuse(args, "--baseline")
     if getattr(args, "stages", None) is not None and args.stages.strip().lower() != "off":
-        raise HarnessError("--stages: a suite trains every seed of every task in one pool and decides with the "
-                           "fixed gate; verify a staged manifest on its own, or pass --stages off")
+        raise HarnessError("--stages: the members of a suite have their own seed counts, so one stage list cannot "
+                           "fit them all; set [check] stages in each manifest to stage it, or pass --stages off to "
+                           "run every member with the fixed gate")
     suite = load_suite(args.manifest, alpha=args.alpha)
-    policies = [policy_from_args(m.check, args).with_overrides(alpha=suite.alpha) for m in suite.manifests]
-    for m, policy in zip(suite.manifests, policies, strict=True):
-        if policy.stages is not None:
-            console.print(f"{m.name}: [check] stages set, but a suite trains every seed and decides with the fixed "
-                          "gate", highlight=False)
+    policies = [stage_policy(policy_from_args(m.check, args), args).with_overrides(alpha=suite.alpha)
+                for m in suite.manifests]
     baselines, histories, scales = {}, {}, {}
     for m in suite.manifests:  # every baseline is checked before anything trains
         path = default_baseline_path(m.name, args.baselines)
@@ -177,6 +177,8 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
                           highlight=False)
     for m, policy in zip(suite.manifests, policies, strict=True):  # a gate that could never decide: refused now
         scales[m.name] = check_gate_policy(m, policy, baseline=baselines[m.name])
+    if any(p.stages is not None for p in policies):
+        return _verify_staged_suite(args, suite, policies, baselines, histories, scales, console)
     try:
         results, folders = _results(args, suite, baselines, console)
     except RunFailedError as exc:
@@ -186,6 +188,50 @@ def verify_suite_command(args: argparse.Namespace, console: Console,
                            scales[m.name])
                for m, r, p, f in zip(suite.manifests, results, policies, folders, strict=True)]
     verdict = verify_suite(suite.name, suite.alpha, members)
+    return _finish(verdict, args, console)
+
+
+def _verify_staged_suite(args: argparse.Namespace, suite: Any, policies: Sequence[Any], baselines: dict,
+                         histories: dict, scales: dict, console: Console) -> ExitCode:
+    """A suite with staged members: each round trains the next stage of every undecided member in one pool."""
+    from harness.cli.staged import first_seeds, stage_line
+    from harness.gate.suite_staged import StagedMember, plan_staged_members, verify_staged_suite
+    from harness.store.results import read_results
+
+    members = [StagedMember(m, baselines[m.name], p, scales[m.name], history=histories.get(m.name))
+               for m, p in zip(suite.manifests, policies, strict=True)]
+    plan_staged_members(suite.alpha, members)  # a stage plan that does not fit: refused before any folder or run
+    folders = dict(zip((m.name for m in suite.manifests), _folders(args, suite), strict=True))
+    by_name = {m.name: m for m in suite.manifests}
+    members = [dataclasses.replace(m, folder=str(folders[m.manifest.name]),
+                                   candidate_label=f"rerun of {m.manifest.name} (results in {folders[m.manifest.name]})")
+               for m in members]
+    for m in members:
+        if m.staged and m.manifest.references:
+            console.print(f"{m.manifest.name}: the staged gate checks the baseline only; its [[reference]] tables are "
+                          "checked by the fixed gate (--stages off)", highlight=False)
+
+    def train(request: Any) -> dict[str, tuple[Any, dict[int, str]]]:
+        names = list(request)
+        if args.no_run:
+            stored = {n: read_results(folders[n]) for n in names}
+            return {n: (first_seeds(stored[n], request[n]), {}) for n in names}
+        manifests = [by_name[n] for n in names]
+        outcomes = _train(args, dataclasses.replace(suite, manifests=tuple(manifests)), [folders[n] for n in names],
+                          baselines, console, first={n: k for n, k in request.items() if k is not None})
+        failed = _failures(outcomes)
+        if failed:
+            raise RunFailedError(failed)
+        return {n: (o.results, dict(o.sources)) for n, o in zip(names, outcomes, strict=True)}
+
+    def on_stage(task: str, plan: Any, stage: Any) -> None:
+        console.print(f"{task}: {stage_line(plan, stage)}", highlight=False)
+
+    try:
+        verdict = verify_staged_suite(suite.name, suite.alpha, members, train, on_stage=on_stage)
+    except RunFailedError as exc:
+        console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
+        return ExitCode.RUNS_FAILED
     return _finish(verdict, args, console)
 
 

@@ -50,8 +50,12 @@ def recorded_run_seconds(baseline: Baseline | None) -> float | None:
 
 
 def suite_plans(manifests: Sequence[object], folders: Sequence[str | os.PathLike],
-                baselines: Mapping[str, Baseline | None]) -> list[RunPlan]:
-    """One :class:`RunPlan` per manifest, with run costs estimated as the module docstring says."""
+                baselines: Mapping[str, Baseline | None], first: Mapping[str, int] | None = None) -> list[RunPlan]:
+    """One :class:`RunPlan` per manifest, with run costs estimated as the module docstring says.
+
+    ``first`` maps a manifest's name to how many of its first seeds to plan (a stage of the
+    staged gate); the others plan every seed.
+    """
     known = {m.name: s for m in manifests if (s := recorded_run_seconds(baselines.get(m.name))) is not None}
 
     def per_step(ms: Sequence[object]) -> float | None:
@@ -65,17 +69,18 @@ def suite_plans(manifests: Sequence[object], folders: Sequence[str | os.PathLike
     if any(c is None for c in costs.values()):  # no time recorded anywhere: budgets for all
         costs = dict.fromkeys(costs)
     return [
-        RunPlan(m.runs(), Path(folder), None if m.path is None else str(Path(m.path).resolve().parent),
+        RunPlan(m.runs()[:(first or {}).get(m.name)], Path(folder), None if m.path is None else str(Path(m.path).resolve().parent),
                 costs[m.name])
         for m, folder in zip(manifests, folders, strict=True)
     ]
 
 
 def run_suite(manifests: Sequence[object], folders: Sequence[str | os.PathLike],
-              baselines: Mapping[str, Baseline | None], **options: object) -> tuple[RunOutcome, ...]:
+              baselines: Mapping[str, Baseline | None], *, first: Mapping[str, int] | None = None,
+              **options: object) -> tuple[RunOutcome, ...]:
     """Train every run of every manifest in one pool (see :func:`harness.execute.runner.run_plans`).
 
-    ``options`` go to :func:`~harness.execute.runner.run_plans` (``workers``, ``executor``,
+    ``first`` as in :func:`suite_plans`; ``options`` go to :func:`~harness.execute.runner.run_plans` (``workers``, ``executor``,
     ``cache``, ``on_event``, ...). Returns one outcome per manifest, in order.
     """
-    return run_plans(suite_plans(manifests, folders, baselines), **options)
+    return run_plans(suite_plans(manifests, folders, baselines, first), **options)

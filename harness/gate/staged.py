@@ -5,11 +5,9 @@ trains the first 5 seeds of the manifest's seed plan, looks, and trains the next
 look decided nothing; it stops at the first look where a metric is worse under the gate's rule
 (the gate fails), where every metric is equivalent within its margin or past its futility
 boundary (the gate passes), or at the last stage (the fixed gate's outcomes without its
-fixed-alpha "worse" test, see below). A futility stop (``[check] stage_futility``, a non-binding
-beta-spending boundary, :mod:`harness.stats.sequential_design`) says that a drop one margin beyond
-the tolerated one is ruled out, so "worse" can no longer be expected: a weaker claim than
-equivalence, and reported apart from it.
-"Worse" follows ``[check] rule`` as the fixed gate does: with the default
+fixed-alpha "worse" test, see below). A futility stop (``[check] stage_futility``;
+:mod:`harness.stats.sequential_design`) rules out a drop one margin beyond the tolerated one: a
+weaker claim than equivalence, reported apart from it. "Worse" follows ``[check] rule`` as the fixed gate does: with the default
 ``drop-beyond-margin`` a look tests ``H0: drop <= margin`` (the sequential test's ``shift`` is
 the margin), with ``any-drop`` it tests ``H0: no drop``; the other two rules combine a test with
 a point estimate or an interval and are not staged (refused before anything trains).
@@ -59,7 +57,8 @@ from harness.stats.drop_rules import DROP_RULES
 from harness.stats.sequential import SequentialLook
 from harness.stats.sequential_design import SequentialPlan
 
-__all__ = ["STAGED_RULES", "MetricOutcome", "Stage", "StagePlan", "StagedVerdict", "plan_stages", "staged_verify"]
+__all__ = ["STAGED_RULES", "MetricOutcome", "Stage", "StagePlan", "StagedRun", "StagedVerdict", "plan_stages",
+           "staged_verify"]
 
 #: What one stage's seeds come from: ``obtain(n) -> (result set of the first n seeds, source per run index)``.
 Obtain = Callable[[int], tuple[Any, Mapping[int, str]]]
@@ -87,6 +86,8 @@ class StagePlan:
         each equivalence half at ``alpha`` and of futility at the policy's ``stage_futility``).
     rule
         The gate rule that says what "worse" is (one of :data:`STAGED_RULES`).
+    scale
+        The floor, threshold and margins the plan was sized from.
     """
 
     stages: tuple[int, ...]
@@ -99,6 +100,7 @@ class StagePlan:
     alpha_metric: float
     sequential: SequentialPlan
     rule: str = "drop-beyond-margin"
+    scale: GateScale | None = None
 
     @property
     def design(self) -> str:
@@ -110,16 +112,10 @@ class StagePlan:
                 f"baseline seeds; {self.design} boundaries; rule {self.rule} "
                 f"({DROP_RULES[self.rule].fails_when}) at alpha {self.alpha:g} split over "
                 f"{len(self.metrics)} metric{'s' if len(self.metrics) != 1 else ''} (Bonferroni, "
-                f"{self.alpha_metric:.3g} each); equivalence needs every metric inside its margin at one look"
-                + self._futility_reading)
-
-    @property
-    def _futility_reading(self) -> str:
-        fut = self.sequential.futility
-        if fut is None:
-            return "; no futility stop"
-        return (f"; futility (non-binding, {fut.kind}, spend {fut.alpha:g}) when every metric rules out a drop of "
-                f"one margin beyond the tolerated one at one look")
+                f"{self.alpha_metric:.3g} each); equivalence needs every metric inside its margin at one look; "
+                + ("no futility stop" if (fut := self.sequential.futility) is None else
+                   f"futility (non-binding, {fut.kind}, spend {fut.alpha:g}) when every metric rules out a drop of "
+                   "one margin beyond the tolerated one at one look"))
 
 
 @dataclasses.dataclass(frozen=True, slots=True)
@@ -206,6 +202,14 @@ class StagedVerdict:
     @property
     def seeds_used(self) -> int:
         return self.stages[-1].n_candidate
+
+    @property
+    def floor(self) -> float | None:  # the floor and threshold of the margins, as Verdict has them
+        return getattr(self.plan.scale, "floor", None)
+
+    @property
+    def threshold(self) -> float | None:
+        return getattr(self.plan.scale, "threshold", None)
 
     @property
     def seeds_saved(self) -> int:
@@ -326,7 +330,7 @@ def plan_stages(manifest: Any, policy: GatePolicy, baseline: Any, scale: GateSca
                                  futility=policy.stage_futility, futility_kind=policy.stage_futility_design)
     return StagePlan(stages=stages, baseline_seeds=n_base, fixed_seeds=count, metrics=metrics, margins=margins,
                      shifts={m: _shift(policy.rule, margins[m]) for m in metrics}, alpha=policy.alpha,
-                     alpha_metric=alpha_metric, sequential=plan, rule=policy.rule)
+                     alpha_metric=alpha_metric, sequential=plan, rule=policy.rule, scale=scale)
 
 
 def _stage_decision(looks: tuple[SequentialLook, ...]) -> str:
@@ -378,6 +382,69 @@ def _metric_arrays(curves: CurveSet, policy: GatePolicy, metrics: tuple[str, ...
     return {m: metric_values(m, curves, policy, None).values for m in metrics}
 
 
+class StagedRun:
+    """The staged gate one stage at a time, for a caller that trains the seeds itself.
+
+    ``next_seeds`` is the candidate seed count the next look needs (None once the gate has
+    stopped); ``look(results, sources)`` takes it on the first ``next_seeds`` seeds; ``verdict()``
+    gives the :class:`StagedVerdict` once stopped. :func:`staged_verify` is the loop over it for
+    one manifest; a suite interleaves several (``harness.gate.suite_staged``).
+    """
+
+    def __init__(self, manifest: Any, baseline: Any, plan: StagePlan, *, policy: GatePolicy | None = None,
+                 folder: str = "") -> None:
+        self.manifest, self.plan, self.folder = manifest, plan, folder
+        self.policy = policy or manifest.check
+        self.base_set = CurveSet.from_baseline(baseline)
+        self.base = _metric_arrays(self.base_set, self.policy, plan.metrics)
+        self.stages: list[Stage] = []
+        self._seen: set[int] = set()
+        self._cand_set: CurveSet | None = None
+        self._cand: dict[str, np.ndarray] = {}
+
+    @property
+    def next_seeds(self) -> int | None:
+        if self.stages and self.stages[-1].decision != "continue":
+            return None
+        return self.plan.stages[len(self.stages)]
+
+    def look(self, results: Any, sources: Mapping[int, str], *, seconds: float = 0.0) -> Stage:
+        """Take the next look on ``results`` (the manifest's first ``next_seeds`` seeds)."""
+        n, k, manifest, plan = self.next_seeds, len(self.stages) + 1, self.manifest, self.plan
+        if n is None:
+            raise RuntimeError(f"the staged gate of {manifest.name} has stopped; take its verdict()")
+        if results.config_hash != manifest.config_hash:
+            raise ResultsError(f"the results in {self.folder or 'the results folder'} have config hash "
+                               f"{results.config_hash}, not the manifest's {manifest.config_hash}")
+        self._cand_set = CurveSet.from_results(results, label=f"rerun of {manifest.name} (results in {self.folder})",
+                                               config=manifest.resolved_config(), expected=n)
+        self._cand = _metric_arrays(self._cand_set, self.policy, plan.metrics)
+        looks = tuple(
+            stats.sequential_look(self.base[m], self._cand[m], plan=plan.sequential, look=k, margin=plan.margins[m],
+                                  shift=plan.shifts[m], higher_is_better=METRICS[m].higher_is_better)
+            for m in plan.metrics
+        )
+        new = [i for i in range(n) if i not in self._seen]
+        self._seen.update(new)
+        trained = sum(1 for i in new if sources.get(i) == "trained")
+        stage = Stage(k, n, plan.baseline_seeds, looks, _stage_decision(looks), trained, len(new) - trained, seconds)
+        self.stages.append(stage)
+        return stage
+
+    def verdict(self) -> StagedVerdict:
+        """The verdict of the stages taken (the gate must have stopped)."""
+        if self.next_seeds is not None or self._cand_set is None:
+            raise RuntimeError(f"the staged gate of {self.manifest.name} has not stopped yet")
+        last, plan, policy = self.stages[-1], self.plan, self.policy
+        outcomes = tuple(_outcome(plan, m, lk, last.decision, self._cand[m], self.base[m])
+                         for m, lk in zip(plan.metrics, last.looks, strict=True))
+        prov = provenance(self.base_set, self._cand_set)
+        exact = exact_check(self.base_set, self._cand_set, prov, policy)
+        return StagedVerdict(manifest=self.manifest.name, plan=plan, stages=tuple(self.stages), outcomes=outcomes,
+                             provenance=prov, exact=exact, gate=_gate(outcomes, policy, exact), policy=policy,
+                             folder=self.folder, baseline_set=self.base_set, candidate_set=self._cand_set)
+
+
 def staged_verify(
     manifest: Any,
     baseline: Any,
@@ -423,40 +490,11 @@ def staged_verify(
        to Clinical Trials. Chapman & Hall/CRC.
     .. [2] Berger, R. L. (1982). Technometrics 24:295-300 (intersection-union tests).
     """
-    policy = policy or manifest.check
-    base_set = CurveSet.from_baseline(baseline)
-    base = _metric_arrays(base_set, policy, plan.metrics)
-    seen: set[int] = set()
-    stages: list[Stage] = []
-    for k, n in enumerate(plan.stages, start=1):
+    run = StagedRun(manifest, baseline, plan, policy=policy, folder=folder)
+    while (n := run.next_seeds) is not None:
         start = time.perf_counter()
         results, sources = obtain(n)
-        if results.config_hash != manifest.config_hash:
-            raise ResultsError(f"the results in {folder or 'the results folder'} have config hash "
-                               f"{results.config_hash}, not the manifest's {manifest.config_hash}")
-        cand_set = CurveSet.from_results(results, label=f"rerun of {manifest.name} (results in {folder})",
-                                         config=manifest.resolved_config(), expected=n)
-        cand = _metric_arrays(cand_set, policy, plan.metrics)
-        looks = tuple(
-            stats.sequential_look(base[m], cand[m], plan=plan.sequential, look=k, margin=plan.margins[m],
-                                  shift=plan.shifts[m], higher_is_better=METRICS[m].higher_is_better)
-            for m in plan.metrics
-        )
-        new = [i for i in range(n) if i not in seen]
-        seen.update(new)
-        trained = sum(1 for i in new if sources.get(i) == "trained")
-        stage = Stage(k, n, plan.baseline_seeds, looks, _stage_decision(looks), trained, len(new) - trained,
-                      time.perf_counter() - start)
-        stages.append(stage)
+        stage = run.look(results, sources, seconds=time.perf_counter() - start)
         if on_stage is not None:
             on_stage(stage)
-        if stage.decision != "continue":
-            break
-    last = stages[-1]
-    outcomes = tuple(_outcome(plan, m, lk, last.decision, cand[m], base[m])
-                     for m, lk in zip(plan.metrics, last.looks, strict=True))
-    prov = provenance(base_set, cand_set)
-    exact = exact_check(base_set, cand_set, prov, policy)
-    return StagedVerdict(manifest=manifest.name, plan=plan, stages=tuple(stages), outcomes=outcomes,
-                         provenance=prov, exact=exact, gate=_gate(outcomes, policy, exact), policy=policy, folder=folder,
-                         baseline_set=base_set, candidate_set=cand_set)
+    return run.verdict()

@@ -28,6 +28,7 @@ from collections.abc import Sequence
 
 from harness import stats
 from harness.gate.compare import Family
+from harness.gate.staged import StagedVerdict
 from harness.gate.suite_aggregate import SuiteAggregate, suite_aggregate
 from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict, verify_manifest, verify_sets
 from harness.manifest.policy import GatePolicy
@@ -63,19 +64,24 @@ class SuiteVerdict:
     name, alpha
         The suite's name and family-wise error rate.
     verdicts
-        One per task, in the suite's order.
+        One per task, in the suite's order: a :class:`~harness.gate.verify.Verdict`, or a
+        :class:`~harness.gate.staged.StagedVerdict` for a task gated in stages.
     family_size
         Checks in the family (every check of every task).
     aggregate
         Normalised-score aggregates across tasks, or ``None`` when no task has both a
         baseline and a known score span.
+    staged_share
+        With staged tasks, each task's share of ``alpha`` (Bonferroni over the tasks,
+        :mod:`harness.gate.suite_staged`); ``None`` when every task ran the fixed gate.
     """
 
     name: str
     alpha: float
-    verdicts: tuple[Verdict, ...]
+    verdicts: tuple[Verdict | StagedVerdict, ...]
     family_size: int
     aggregate: SuiteAggregate | None
+    staged_share: float | None = None
 
     @property
     def passed(self) -> bool:
@@ -89,22 +95,33 @@ class SuiteVerdict:
     @property
     def family(self) -> str:
         """How the checks were adjusted, in words."""
-        return (f"Holm (1979) over all {self.family_size} checks of the {len(self.verdicts)} tasks at "
-                f"alpha {self.alpha:g}, each kind of p-value separately")
+        if self.staged_share is None:
+            return (f"Holm (1979) over all {self.family_size} checks of the {len(self.verdicts)} tasks at "
+                    f"alpha {self.alpha:g}, each kind of p-value separately")
+        staged = sum(isinstance(v, StagedVerdict) for v in self.verdicts)
+        fixed = len(self.verdicts) - staged
+        text = (f"Bonferroni over the {len(self.verdicts)} tasks ({self.family_size} checks) at alpha {self.alpha:g}: "
+                f"each of the {staged} staged task{'s' if staged != 1 else ''} at {self.staged_share:.3g} (split "
+                "over its metrics)")
+        if fixed:
+            text += (f", the {fixed} fixed task{'s' if fixed != 1 else ''} together at "
+                     f"{self.staged_share * fixed:.3g} with Holm (1979) over their checks")
+        return text
 
     @property
     def summary(self) -> str:
         """One line: the suite gate's outcome, task and verdict counts."""
         counts: dict[str, int] = {}
         for v in self.verdicts:
-            for c in v.checks:
+            for c in (v.outcomes if isinstance(v, StagedVerdict) else v.checks):
                 counts[c.verdict] = counts.get(c.verdict, 0) + 1
-        listed = ", ".join(f"{n} {k}" for k in ("equivalent", "better", "worse", "inconclusive")
-                           if (n := counts.get(k)))
+        listed = ", ".join(f"{n} {k}" for k in ("equivalent", "not-worse", "better", "worse", "inconclusive",
+                                                "undecided") if (n := counts.get(k)))
         failing = f"; failing: {', '.join(self.failing)}" if self.failing else ""
+        family = "Holm over all" if self.staged_share is None else "Bonferroni over the tasks"
         return (f"suite gate {'PASSED' if self.passed else 'FAILED'} for {self.name}: "
                 f"{len(self.verdicts) - len(self.failing)} of {len(self.verdicts)} tasks pass; "
-                f"{self.family_size} checks ({listed or 'none'}), Holm over all at {self.alpha:g}{failing}.")
+                f"{self.family_size} checks ({listed or 'none'}), {family} at {self.alpha:g}{failing}.")
 
     def explain(self) -> str:
         """Plain text: the summary, the family, each task's summary and gate reasons."""

@@ -38,6 +38,7 @@ from harness import stats
 from harness.core.errors import ResultsError, TooFewSeedsWarning
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet, random_policy_return
+from harness.gate.staged import StagedVerdict
 from harness.gate.verify import Verdict
 
 __all__ = ["SuiteAggregate", "TaskScores", "normalised_scores", "suite_aggregate"]
@@ -113,7 +114,7 @@ def normalised_scores(curve_set: CurveSet, policy: object, *, floor: float, thre
     return (values - floor) / (threshold - floor)
 
 
-def _span(manifest: object, verdict: Verdict) -> tuple[float, float] | str:
+def _span(manifest: object, verdict: Verdict | StagedVerdict) -> tuple[float, float] | str:
     """The task's (floor, threshold) as its gate resolved them (:mod:`harness.gate.margins`), or why there is none."""
     threshold = verdict.threshold
     if threshold is None:
@@ -135,7 +136,7 @@ def _profile_thresholds(scores: np.ndarray) -> np.ndarray:
     return np.linspace(low - pad, high + pad, _PROFILE_POINTS)
 
 
-def suite_aggregate(manifests: Sequence[object], verdicts: Sequence[Verdict], *,
+def suite_aggregate(manifests: Sequence[object], verdicts: Sequence[Verdict | StagedVerdict], *,
                     rng: object = None) -> SuiteAggregate | None:
     """Normalise every task's runs and aggregate them across tasks (see the module docstring).
 

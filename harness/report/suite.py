@@ -15,6 +15,7 @@ from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
+from harness.gate.staged import StagedVerdict
 from harness.gate.suite import SuiteVerdict
 from harness.gate.suite_aggregate import SuiteAggregate
 from harness.gate.verify import WHAT_A_PASS_MEANS, Verdict
@@ -22,6 +23,7 @@ from harness.report.jsonreport import verdict_text
 from harness.report.junit import render_junit
 from harness.report.markdown import _table as _md_table
 from harness.report.markdown import render_markdown
+from harness.report.staged import StagedReport, render_staged_junit, render_staged_markdown, staged_text
 from harness.report.terminal import VerdictReport
 from harness.stats import BootstrapResult, PerformanceProfile
 
@@ -35,8 +37,23 @@ TASK_HEADER = ("task", "gate", "checks (family-adjusted)", "exact check", "score
 AGGREGATE_HEADER = ("statistic", "candidate [95% interval]", "baseline [95% interval]")
 
 
-def _checks_cell(v: Verdict) -> str:
+def _checks_cell(v: Verdict | StagedVerdict) -> str:
+    if isinstance(v, StagedVerdict):
+        return (", ".join(f"{o.metric} {o.verdict}" for o in v.outcomes)
+                + f" (staged: stopped at stage {v.stages[-1].look}, {v.seeds_used} of {v.plan.fixed_seeds} seeds)")
     return ", ".join(f"{c.name} {c.verdict} (p {c.pvalue:.3g})" for c in v.checks) or "no checks"
+
+
+def _history(v: Verdict | StagedVerdict) -> object | None:
+    return None if isinstance(v, StagedVerdict) else v.history
+
+
+def _task_markdown(v: Verdict | StagedVerdict) -> str:
+    return render_staged_markdown(v) if isinstance(v, StagedVerdict) else render_markdown(v)
+
+
+def _task_junit(v: Verdict | StagedVerdict) -> str:
+    return render_staged_junit(v) if isinstance(v, StagedVerdict) else render_junit(v)
 
 
 def task_rows(sv: SuiteVerdict) -> list[tuple[str, ...]]:
@@ -81,12 +98,12 @@ class SuiteReport:
 
     def __rich__(self) -> RenderableType:
         sv = self.verdict
-        parts: list[RenderableType] = [Text(f"{v.manifest}: {v.history.headline}", style="bold yellow")
-                                       for v in sv.verdicts if v.history is not None and v.history.changed]
+        parts: list[RenderableType] = [Text(f"{v.manifest}: {h.headline}", style="bold yellow")
+                                       for v in sv.verdicts if (h := _history(v)) is not None and h.changed]
         if self.details:
             for v in sv.verdicts:
                 parts += [Text(f"── {v.manifest} " + "─" * max(0, 60 - len(v.manifest)), style="bold"),
-                          VerdictReport(v), Text("")]
+                          StagedReport(v) if isinstance(v, StagedVerdict) else VerdictReport(v), Text("")]
         table = Table(title=f"suite {sv.name}: {len(sv.verdicts)} tasks", title_justify="left", show_edge=False)
         for name in TASK_HEADER:
             table.add_column(name, overflow="fold", no_wrap=name in ("task", "gate"))
@@ -125,7 +142,7 @@ def render_suite_markdown(sv: SuiteVerdict) -> str:
         out += [_aggregate_note(sv.aggregate), ""]
     out += [f"_{WHAT_A_PASS_MEANS}_", ""]
     for v in sv.verdicts:  # each task's report, one heading level down
-        out += ["#" + line if line.startswith("#") else line for line in render_markdown(v).splitlines()]
+        out += ["#" + line if line.startswith("#") else line for line in _task_markdown(v).splitlines()]
     return "\n".join(out) + "\n"
 
 
@@ -162,9 +179,12 @@ def suite_json(sv: SuiteVerdict) -> dict:
         "passed": sv.passed,
         "summary": sv.summary,
         "what_a_pass_means": WHAT_A_PASS_MEANS,
-        "family": {"method": "Holm", "alpha": sv.alpha, "checks": sv.family_size, "reading": sv.family},
+        "family": {"method": "Holm" if sv.staged_share is None else "Bonferroni over tasks (Holm within the fixed)",
+                   "alpha": sv.alpha, "alpha_per_task": sv.staged_share, "checks": sv.family_size,
+                   "reading": sv.family},
         "failing": list(sv.failing),
-        "tasks": [json.loads(verdict_text(v)) for v in sv.verdicts],
+        "tasks": [json.loads(staged_text(v) if isinstance(v, StagedVerdict) else verdict_text(v))
+                  for v in sv.verdicts],
         "aggregate": None if sv.aggregate is None else _aggregate_json(sv.aggregate),
     }
 
@@ -179,7 +199,7 @@ def render_suite_junit(sv: SuiteVerdict) -> str:
     root = ET.Element("testsuites", name=f"rlharness.suite.{sv.name}")
     totals = dict.fromkeys(("tests", "failures", "errors", "skipped"), 0)
     for v in sv.verdicts:
-        task = ET.fromstring(render_junit(v).split("\n", 1)[1])
+        task = ET.fromstring(_task_junit(v).split("\n", 1)[1])
         for key in totals:
             totals[key] += int(task.get(key, "0"))
         root.append(task)
