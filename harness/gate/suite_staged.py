@@ -12,8 +12,8 @@ fixed tasks keep Holm's step-down over all their checks together at ``alpha * F 
 configuration fails anywhere in the suite is at most ``alpha``. Holm across staged tasks is not
 carried over for the reason the staged gate gives across metrics (``docs/statistics.md``): a
 staged gate stops at its first crossing, while Holm orders the p-values of one analysis. The
-price: a staged task's checks run at ``alpha / T`` per task even when other tasks' p-values are
-large, where the all-fixed suite's Holm could give it more.
+price: Holm's first step is Bonferroni over all checks too; what is lost is its relaxing of later
+thresholds once other checks were rejected.
 """
 
 from __future__ import annotations
