@@ -208,3 +208,42 @@ def test_a_worker_stopped_between_checkpoints_still_stops_its_program(tmp_path):
     pids = pids_of(tmp_path / "r")
     assert len(pids) == 2 and not any(alive(pid) for pid in pids)
     assert held.__traceback__ is not None
+
+
+def test_a_worker_killed_by_sigkill_takes_its_program_and_the_programs_child_with_it(tmp_path):
+    """kill -9 of a worker (what the out-of-memory killer does) runs no code in it; the program and
+    its child, in their own process group, used to keep running. The worker's guard process
+    (harness.trainers.orphan_guard) sees the worker's end of its pipe close and stops the group."""
+    from harness.execute import Task, WorkerResult
+    from harness.execute.local import LocalExecutor
+
+    manifest = load_manifest(write_manifest(tmp_path / "m", extra=["--index", "1"], seeds=[1]))
+    (tmp_path / "m" / "slow").write_text("600")  # the program pauses 600 s before its first checkpoint
+    results = tmp_path / "r"
+    pool = LocalExecutor(1)
+    pids: list[int] = []
+    try:
+        pool.submit(Task(manifest.runs(), None, str(tmp_path / "m"), str(results)))
+        deadline = time.monotonic() + 60
+        while len(pids) < 2:
+            assert time.monotonic() < deadline, "the program did not start"
+            pool.poll(0.05)
+            pids = pids_of(results)
+        worker = psutil.Process(pids[0]).ppid()
+        assert worker == pool._pool[0].process.pid  # the program is the worker's child
+        os.kill(worker, signal.SIGKILL)
+        deadline = time.monotonic() + 60
+        outcome = []
+        while not outcome:
+            assert time.monotonic() < deadline, "the dead worker was not reported"
+            outcome = [r for r in pool.poll(0.2) if isinstance(r, WorkerResult)]
+        gone_by = time.monotonic() + 5
+        while any(alive(pid) for pid in pids) and time.monotonic() < gone_by:
+            time.sleep(0.05)
+        assert not any(alive(pid) for pid in pids), "the program outlived its worker"
+        assert "killed by signal SIGKILL" in outcome[0].failure
+    finally:
+        pool.close()
+        for pid in pids:  # a failure above must not leave the 600 s program behind
+            if alive(pid):
+                os.kill(pid, signal.SIGKILL)

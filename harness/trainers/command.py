@@ -33,6 +33,7 @@ import shlex
 import signal
 import subprocess
 import sys
+import threading
 import time
 from collections.abc import Iterator, Mapping
 from pathlib import Path
@@ -240,9 +241,40 @@ def git_commit(folder: Path) -> str | None:
     return head.stdout.strip() + ("+changes" if status.stdout.strip() else "")
 
 
-# Programs running in this process, by process group id: the one piece of process state, so that
-# a signal handler (a worker told to stop) and atexit reach every program still running.
+# Programs running in this process, by process group id, so that a signal handler (a worker told
+# to stop) and atexit reach every program still running; and the guard that stops them if this
+# process dies without running any code (SIGKILL), with the process it belongs to.
 _LIVE: dict[int, subprocess.Popen] = {}
+_GUARD: tuple[int, subprocess.Popen] | None = None
+_GUARD_LOCK = threading.Lock()
+_GUARD_SCRIPT = Path(__file__).with_name("orphan_guard.py")
+
+
+def _start_guard() -> subprocess.Popen:
+    """Start :mod:`harness.trainers.orphan_guard` for this process, told of every program running now."""
+    guard = subprocess.Popen([sys.executable, "-I", "-S", str(_GUARD_SCRIPT)], stdin=subprocess.PIPE,
+                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    guard.stdin.write(b"".join(b"+%d\n" % pgid for pgid in _LIVE))
+    guard.stdin.flush()
+    return guard
+
+
+def _tell_guard(line: bytes) -> None:
+    """Send ``+PGID``/``-PGID`` to this process's guard, starting it (again) when it is not running.
+
+    A process forked from this one inherits the module's state but not the guard's loyalty: the
+    guard watches the process that started it, so a child of a fork starts its own.
+    """
+    global _GUARD
+    with _GUARD_LOCK:
+        if _GUARD is not None and _GUARD[0] == os.getpid() and _GUARD[1].poll() is None:
+            try:
+                _GUARD[1].stdin.write(line)
+                _GUARD[1].stdin.flush()
+                return
+            except OSError:  # the guard died (someone killed it): start a new one
+                pass
+        _GUARD = (os.getpid(), _start_guard())
 
 
 def _stop(proc: subprocess.Popen, *, grace: float = _GRACE) -> None:
@@ -258,8 +290,9 @@ def _stop(proc: subprocess.Popen, *, grace: float = _GRACE) -> None:
         os.killpg(pgid, signal.SIGKILL)  # also what the program left behind in its group
     except (ProcessLookupError, PermissionError):
         pass
+    if _LIVE.pop(pgid, None) is not None:
+        _tell_guard(b"-%d\n" % pgid)  # before the wait: until it is reaped, no other process can get this id
     proc.wait()
-    _LIVE.pop(pgid, None)
 
 
 def stop_programs() -> None:
@@ -268,7 +301,15 @@ def stop_programs() -> None:
         _stop(proc, grace=0.2)
 
 
-atexit.register(stop_programs)
+def _at_exit() -> None:
+    """Stop the programs, then let the guard go (end of file on its pipe) and reap it."""
+    stop_programs()
+    if _GUARD is not None and _GUARD[0] == os.getpid():
+        _GUARD[1].stdin.close()
+        _GUARD[1].wait()
+
+
+atexit.register(_at_exit)
 
 
 def _tail(log: Path) -> str:
@@ -345,6 +386,7 @@ def train(run: RunSpec, workspace: Workspace) -> Iterator[Checkpoint]:
     deadline = None if workspace.time_limit is None else time.monotonic() + workspace.time_limit
     stream = None
     try:
+        _tell_guard(b"+%d\n" % proc.pid)  # from here on the program cannot outlive this process
         try:
             while True:
                 code = proc.poll()
