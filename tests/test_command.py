@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 import signal
 import subprocess
 import sys
@@ -20,6 +19,7 @@ from pathlib import Path
 
 import psutil
 import pytest
+from command_toys import write_manifest
 
 from harness.cli import main
 from harness.core.curvefile import parse_curve_text
@@ -29,38 +29,6 @@ from harness.manifest.loader import load_manifest, parse_manifest
 from harness.store.results import read_results
 from harness.trainers.command import program_seed
 from harness.core.seeding import RunSeed
-
-PROGRAM = Path(__file__).parent / "programs" / "curve_writer.py"
-
-MANIFEST = """
-name = "toy-command"
-[task]
-id = "Toy-v0"
-gymnasium = false
-[trainer]
-command = ["{{python}}", "curve_writer.py", "--seed", "{{seed}}", "--steps", "{{env_steps}}", "--every",
-           "{{eval_every}}", "--episodes", "{{eval_episodes}}", "--out", "{{curve_file}}"{extra}]
-{keys}
-[budget]
-env_steps = 100
-[evaluation]
-every = 25
-episodes = 3
-[seeds]
-values = {seeds}
-[check]
-threshold = 1.0
-floor = 0.0
-"""
-
-
-def write_manifest(folder: Path, *, extra: list[str] = (), keys: str = "", seeds=(1, 2, 3)) -> Path:
-    folder.mkdir(parents=True, exist_ok=True)
-    shutil.copy(PROGRAM, folder / "curve_writer.py")
-    text = MANIFEST.format(extra="".join(f', "{a}"' for a in extra), keys=keys, seeds=list(seeds))
-    path = folder / "m.toml"
-    path.write_text(text)
-    return path
 
 
 def alive(pid: int) -> bool:

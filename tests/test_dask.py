@@ -8,10 +8,12 @@ from __future__ import annotations
 import sys
 
 import pytest
+from command_toys import write_manifest
 from runner_toys import folder_bytes, toy_specs
 
 from harness.execute import make_executor
-from harness.execute.runner import run_specs
+from harness.execute.runner import run_manifest, run_specs
+from harness.manifest.loader import load_manifest
 
 distributed = pytest.importorskip("distributed")
 
@@ -32,6 +34,20 @@ def test_dask_gives_the_local_pools_bytes(cluster, tmp_path):
         out = run_specs(specs[::-1], results_dir=tmp_path / "dask", executor="dask", scheduler=client, use_cache=False)
     assert out.ok and set(out.sources.values()) == {"trained"}
     assert folder_bytes(tmp_path / "dask") == folder_bytes(tmp_path / "local")
+
+
+def test_a_command_trainer_on_dask_gives_the_local_pools_bytes(cluster, tmp_path):
+    """The command trainer runs its program from a dask worker thread; curves, logs and records agree."""
+    manifest = load_manifest(write_manifest(tmp_path / "m", seeds=[1, 2, 3, 4]))
+    local = run_manifest(manifest, results_dir=tmp_path / "local", workers=2, use_cache=False)
+    with distributed.Client(cluster) as client:
+        dask = run_manifest(manifest, results_dir=tmp_path / "dask", executor="dask", scheduler=client, use_cache=False)
+    assert local.ok and dask.ok and set(dask.sources.values()) == {"trained"}
+    assert len(folder_bytes(tmp_path / "dask")) == 4
+    assert folder_bytes(tmp_path / "dask") == folder_bytes(tmp_path / "local")
+    for record in dask.results.records:
+        curve = f"runs/seed-{record.spec.seed.label}/curve.csv"
+        assert (tmp_path / "dask" / curve).read_bytes() == (tmp_path / "local" / curve).read_bytes()
 
 
 def test_dask_by_scheduler_address_records_failures_and_time_limits(cluster, tmp_path):
