@@ -29,6 +29,7 @@ from __future__ import annotations
 import ast
 import hashlib
 import sys
+import threading
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
@@ -36,6 +37,11 @@ from typing import Any
 __all__ = ["source_files", "source_fingerprint"]
 
 _SELF = __name__.split(".")[0]
+# One ast.parse at a time in this process. CPython 3.11 keeps the AST constructor's recursion depth
+# in per-interpreter state, so two threads parsing at once (a dask worker with two threads, each
+# resolving a trainer) can corrupt it: "SystemError: AST constructor recursion depth mismatch".
+# Seen on 3.11.7, not on 3.12.1 or 3.13.0 (docs/running.md, executors); the lock costs nothing.
+_PARSE_LOCK = threading.Lock()
 
 
 def _roots(top: str) -> list[Path]:
@@ -61,7 +67,10 @@ def _module_file(module: str) -> tuple[str, Path] | None:
 def _imports(module: str, file: Path, is_package: bool) -> Iterator[str]:
     """Every module name ``file`` imports, and ``package.name`` for each ``from package import name``."""
     package = module if is_package else module.rpartition(".")[0]
-    for node in ast.walk(ast.parse(file.read_bytes(), filename=str(file))):
+    source = file.read_bytes()
+    with _PARSE_LOCK:
+        tree = ast.parse(source, filename=str(file))
+    for node in ast.walk(tree):
         if isinstance(node, ast.Import):
             yield from (alias.name for alias in node.names)
         elif isinstance(node, ast.ImportFrom):
