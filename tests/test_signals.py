@@ -100,6 +100,30 @@ def test_a_signal_while_the_manifest_loads_ends_with_130_and_no_traceback(tmp_pa
     assert "Traceback" not in out + err
 
 
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM])
+@pytest.mark.parametrize("entry", ["rlharness", "python -m harness"])
+def test_a_signal_while_the_command_starts_ends_with_130_and_no_traceback(tmp_path, entry, signum):
+    """During the import of the command line layer (made slow by tests/programs/slow_start, which
+    stands in for argparse). Before the entry point installed its handler first: SIGINT gave a
+    KeyboardInterrupt traceback and exit -2, SIGTERM exit -15."""
+    script = Path(sys.executable).with_name("rlharness")
+    if entry == "rlharness" and not script.is_file():
+        pytest.skip("the rlharness console script is not installed beside this Python")
+    argv = [str(script)] if entry == "rlharness" else [sys.executable, "-m", "harness"]
+    marker = tmp_path / "importing"
+    env = {**_env(), "SLOW_START_MARKER": str(marker)}
+    env["PYTHONPATH"] = os.pathsep.join([str(TESTS / "programs" / "slow_start"), env["PYTHONPATH"]])
+    proc = subprocess.Popen([*argv, "--version"], cwd=tmp_path, env=env, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    try:
+        _wait_for(marker.exists)
+    finally:
+        proc.send_signal(signum)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, (out, err)
+    assert "Traceback" not in out + err and err.startswith("interrupted")
+
+
 def test_a_trainer_hanging_past_the_time_limit_ends_verify_with_exit_3(tmp_path):
     proc = _start(tmp_path, "verify", 'bad = ["7/1"]\nmode = "hang"', "--time-limit", "2")
     out, err = proc.communicate(timeout=120)

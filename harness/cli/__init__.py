@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import harness
-from harness.core.interrupt import sigterm_as_interrupt
+from harness.core.interrupt import INTERRUPTED, sigterm_as_interrupt
 
 if TYPE_CHECKING:  # rich is imported inside main(): a Ctrl-C during that import is an interruption too
     from rich.console import Console
@@ -99,7 +99,7 @@ def main(argv: Sequence[str] | None = None, *, console: Console | None = None) -
         with sigterm_as_interrupt():
             return _main(argv, console)
     except KeyboardInterrupt:
-        print("interrupted: finished runs are kept; run the same command again to resume", file=sys.stderr)
+        print(INTERRUPTED, file=sys.stderr)
         return ExitCode.INTERRUPTED
 
 

@@ -13,7 +13,10 @@ import signal
 import threading
 from collections.abc import Iterator
 
-__all__ = ["sigterm_as_interrupt"]
+__all__ = ["INTERRUPTED", "sigterm_as_interrupt"]
+
+#: What a command stopped by Ctrl-C or SIGTERM prints on stderr before it exits with 130.
+INTERRUPTED = "interrupted: finished runs are kept; run the same command again to resume"
 
 
 @contextlib.contextmanager
