@@ -111,8 +111,11 @@ def test_existing_baselines_stay_valid_without_a_recorder(tmp_path):
     baseline = make_baseline(0.5)
     assert "recorder" not in baseline.content()
     assert read_baseline(write_baseline(baseline, tmp_path / "b.json")).recorder is None
-    shipped = sorted((Path(__file__).resolve().parents[1] / "baselines").glob("*.json"))
-    assert shipped and all(read_baseline(p).recorder is None for p in shipped)
+    # Shipped baselines recorded before the field (FrozenLake, Taxi, CartPole) still read, with no
+    # recorder; those re-recorded since (Acrobot, MountainCar) name one.
+    shipped = {p.stem: read_baseline(p) for p in (Path(__file__).resolve().parents[1] / "baselines").glob("*.json")}
+    assert [name for name, b in sorted(shipped.items()) if b.recorder is None] == [
+        "cartpole-dqn", "frozenlake-q", "taxi-q"]
 
 
 MANIFEST = """\
