@@ -52,6 +52,17 @@ def _env() -> dict[str, str]:
     return {**os.environ, "PYTHONPATH": os.pathsep.join([str(HARNESS_ROOT / "tests"), str(TESTS), str(HARNESS_ROOT)])}
 
 
+def _interrupt(proc, how: str) -> tuple[int, bool]:
+    """Stop ``proc`` by SIGTERM or by Ctrl-C (SIGINT to its process group); its exit code and
+    whether it printed a traceback."""
+    if how == "SIGTERM":
+        proc.send_signal(signal.SIGTERM)
+    else:
+        os.killpg(proc.pid, signal.SIGINT)
+    out, err = proc.communicate(timeout=120)
+    return proc.returncode, "Traceback" in out + err
+
+
 def _seed_files(folder: Path) -> dict[str, bytes]:
     return {p.name: p.read_bytes() for p in sorted(folder.glob("seed-*.json"))}
 
@@ -86,13 +97,9 @@ def signal_trials(n: int, folder: Path, rng: np.random.Generator) -> None:
         proc = _start(manifest, results, "run")
         _wait_for(results / "seed-7-0.json")
         time.sleep(float(rng.uniform(0.0, 0.5)))
-        if how == "SIGTERM":
-            proc.send_signal(signal.SIGTERM)
-        else:
-            os.killpg(proc.pid, signal.SIGINT)
-        out, err = proc.communicate(timeout=120)
-        codes[(how, proc.returncode)] += 1
-        tracebacks += "Traceback" in out + err
+        returncode, traceback = _interrupt(proc, how)
+        codes[(how, returncode)] += 1
+        tracebacks += traceback
         rerun = _start(manifest, results, "run")
         rerun.communicate(timeout=300)
         equal += _seed_files(results) == reference
@@ -105,13 +112,9 @@ def signal_trials(n: int, folder: Path, rng: np.random.Generator) -> None:
         how = ("SIGTERM", "Ctrl-C")[trial % 2]
         proc = _start(manifest, folder / f"early-{trial}", "run")
         time.sleep(float(rng.uniform(0.3, 2.0)))  # while the command starts: imports, manifest, workers
-        if how == "SIGTERM":
-            proc.send_signal(signal.SIGTERM)
-        else:
-            os.killpg(proc.pid, signal.SIGINT)
-        out, err = proc.communicate(timeout=120)
-        codes[(how, proc.returncode)] += 1
-        tracebacks += "Traceback" in out + err
+        returncode, traceback = _interrupt(proc, how)
+        codes[(how, returncode)] += 1
+        tracebacks += traceback
     print(f"signals early: {n} trials 0.3-2 s after the command starts (SIGTERM / Ctrl-C alternately)")
     print(f"  exit codes          {dict(sorted(codes.items()))}")
     print(f"  tracebacks printed  {tracebacks}")

@@ -8,7 +8,7 @@ from typing import Any
 
 from harness.gate.verify import WHAT_A_PASS_MEANS, Provenance, Verdict
 
-__all__ = ["VERDICT_SCHEMA", "json_text", "provenance_json", "verdict_json", "verdict_text"]
+__all__ = ["VERDICT_SCHEMA", "json_text", "outcome_json", "provenance_json", "verdict_json", "verdict_text"]
 
 #: Schema tag of the JSON report; bumped on any incompatible change.
 VERDICT_SCHEMA = "rlharness.verdict/1"
@@ -45,6 +45,22 @@ def provenance_json(prov: Provenance, baseline_set: Any = None, candidate_set: A
     }
 
 
+def outcome_json(verdict: Any) -> dict:
+    """The keys every verdict's JSON opens with: manifest, passed, summary, what a pass means, the gate.
+
+    ``verdict`` is a fixed (:class:`Verdict`) or staged verdict: anything with ``manifest``,
+    ``passed``, ``summary`` and ``gate`` (a ``GateDecision``).
+    """
+    gate = verdict.gate
+    return {
+        "manifest": verdict.manifest,
+        "passed": verdict.passed,
+        "summary": verdict.summary,
+        "what_a_pass_means": WHAT_A_PASS_MEANS,
+        "gate": {"passed": gate.passed, "rule": gate.rule, "reasons": list(gate.reasons), "failing": list(gate.failing)},
+    }
+
+
 def verdict_json(verdict: Verdict) -> dict:
     """The verdict as a JSON-compatible dict (``schema`` = :data:`VERDICT_SCHEMA`).
 
@@ -60,12 +76,7 @@ def verdict_json(verdict: Verdict) -> dict:
     return {
         "schema": VERDICT_SCHEMA,
         "baseline_history": None if v.history is None else v.history.to_json(),
-        "manifest": v.manifest,
-        "passed": v.passed,
-        "summary": v.summary,
-        "what_a_pass_means": WHAT_A_PASS_MEANS,
-        "gate": {"passed": v.gate.passed, "rule": v.gate.rule, "reasons": list(v.gate.reasons),
-                 "failing": list(v.gate.failing)},
+        **outcome_json(v),
         "margins": [dataclasses.asdict(m) for m in v.scale.margins],
         "policy": v.policy.to_json(),
         "floor": v.floor,

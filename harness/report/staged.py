@@ -18,7 +18,7 @@ from rich.text import Text
 from harness.gate.staged import StagedVerdict
 from harness.gate.verify import WHAT_A_PASS_MEANS
 from harness.report._rows import num
-from harness.report.jsonreport import json_text, provenance_json
+from harness.report.jsonreport import json_text, outcome_json, provenance_json
 from harness.report.junit import junit_document
 
 __all__ = ["STAGE_HEADER", "STAGED_SCHEMA", "StagedReport", "render_staged_junit", "render_staged_markdown",
@@ -133,12 +133,7 @@ def staged_json(verdict: StagedVerdict) -> dict:
     v, p = verdict, verdict.plan
     return {
         "schema": STAGED_SCHEMA,
-        "manifest": v.manifest,
-        "passed": v.passed,
-        "summary": v.summary,
-        "what_a_pass_means": WHAT_A_PASS_MEANS,
-        "gate": {"passed": v.gate.passed, "rule": v.gate.rule, "reasons": list(v.gate.reasons),
-                 "failing": list(v.gate.failing)},
+        **outcome_json(v),
         "decision": v.decision,
         "stopped_because": v.stopped_because,
         "seeds": {"used": v.seeds_used, "fixed": p.fixed_seeds, "saved": v.seeds_saved,
