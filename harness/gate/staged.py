@@ -41,12 +41,12 @@ from harness import stats
 from harness.core.errors import BaselineError, ConfigError, ResultsError
 from harness.gate.compare import metric_values
 from harness.gate.curveset import CurveSet
+from harness.gate.decision import GateDecision
 from harness.gate.metrics import METRICS
 from harness.gate.margins import GateScale
 from harness.gate.verify import (
     WHAT_A_PASS_MEANS,
     ExactCheck,
-    GateDecision,
     Provenance,
     exact_check,
     provenance,

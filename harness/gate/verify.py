@@ -52,7 +52,6 @@ __all__ = [
     "ConfigChange",
     "VersionChange",
     "ExactCheck",
-    "GateDecision",
     "Provenance",
     "Verdict",
     "exact_check",
