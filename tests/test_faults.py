@@ -13,6 +13,8 @@ import subprocess
 import sys
 import textwrap
 import time
+
+import pytest
 from pathlib import Path
 
 from runner_toys import folder_bytes, toy_specs
@@ -194,3 +196,38 @@ def test_two_concurrent_runners_share_folder_and_cache_without_duplicate_work(tm
     run_specs(toy_specs(4, config={"pause": 0.05}), results_dir=tmp_path / "clean", workers=2, use_cache=False)
     assert folder_bytes(folder) == folder_bytes(tmp_path / "clean")
     assert not list(folder.glob(".*.tmp")) and not list(Path(RunCache(cache).folder).rglob("*.tmp"))
+
+
+class _StopDuringCleanup:
+    """Sends SIGTERM to this process from ``__del__``, where Python ignores raised exceptions.
+
+    This is how CI lost a SIGTERM (stop 16): the handler's KeyboardInterrupt was raised inside a
+    weakref callback, printed as "Exception ignored in ...", and the run finished with exit 0.
+    """
+
+    def __del__(self):
+        signal.raise_signal(signal.SIGTERM)
+
+
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")  # the ignored exception, on purpose
+def test_stop_signal_swallowed_in_cleanup_code_still_ends_the_block():
+    from harness.core.interrupt import sigterm_as_interrupt
+
+    with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+        with sigterm_as_interrupt():
+            _StopDuringCleanup()  # dropped at once: __del__ runs, its KeyboardInterrupt is ignored
+    with sigterm_as_interrupt():  # nothing left pending after the interrupt was delivered
+        pass
+
+
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")  # the ignored exception, on purpose
+def test_stop_signal_swallowed_in_cleanup_code_stops_the_runner_at_its_next_poll(tmp_path):
+    def stop_after_first(event):
+        if event.kind == "finished":
+            _StopDuringCleanup()
+
+    specs = toy_specs(4, config={"pause": 0.1})
+    with pytest.raises(KeyboardInterrupt, match="SIGTERM"):
+        run_specs(specs, results_dir=tmp_path, workers=1, use_cache=False, on_event=stop_after_first)
+    kept = folder_bytes(tmp_path)
+    assert 1 <= len(kept) < 4 and not (tmp_path / "index.json").exists()

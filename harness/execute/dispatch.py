@@ -21,6 +21,7 @@ import dataclasses
 from collections import deque
 from collections.abc import Sequence
 
+from harness.core.interrupt import raise_if_interrupted
 from harness.core.spec import RunSpec
 from harness.execute import Executor, RunEvent, Task
 from harness.execute.plan_state import PlanState
@@ -98,6 +99,7 @@ def drive(runs: Sequence[PlanState], executor: Executor, jobs: list[tuple[PlanSt
             # Every remaining run is being trained by another runner: wait for the first.
             run, task = queue.popleft()
             _start(run, executor, task, wait=True)
+        raise_if_interrupted()  # a stop signal whose KeyboardInterrupt was swallowed (core.interrupt)
         for item in executor.poll(_POLL):
             run, local = _owner(runs, item.index)
             if isinstance(item, RunEvent):
