@@ -71,6 +71,8 @@ def test_unchanged_rerun_stops_early_as_equivalent(at):
     assert code == ExitCode.OK, out
     assert "every metric crossed its equivalence boundaries at stage 1 of 2 (3 candidate seeds)" in out
     assert "3 of 6 seeds trained, 3 saved (50%) against the fixed gate" in out
+    # A first stage under 10 seeds is flagged: Welch's t is liberal there on two-point metrics (our simulation).
+    assert "caution: the first stage has 3 seeds" in out and "caution: the first stage" in (at / "out/eq.md").read_text()
     report = json.loads((at / "out/eq.json").read_text())
     assert report["schema"] == "rlharness.staged-verdict/1" and report["passed"] is True
     assert report["decision"] == "equivalent" and len(report["stages"]) == 1
@@ -226,3 +228,10 @@ def test_stages_off_runs_the_fixed_gate(at):
     code, out = cli("verify", "lake.toml", "--stages", "off", "--workers", "2")
     assert code == ExitCode.OK, out  # an unchanged rerun: every seed identical to the baseline
     assert "3. statistical checks" in out and "(staged)" not in out
+
+
+def test_first_stage_of_ten_seeds_or_more_carries_no_caution():
+    from harness.report.staged import _small_first_stage
+
+    assert _small_first_stage(10) == [] and _small_first_stage(20) == []
+    assert "first stage has 9 seeds" in _small_first_stage(9)[0]

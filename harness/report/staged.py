@@ -67,7 +67,21 @@ def _notes(v: StagedVerdict) -> list[str]:
         f"margins: {margins}; drop tolerated before 'worse': {shifts}; futility rules out a drop of one margin "
         "beyond the tolerated one (a futility pass is no proof of equivalence).",
         f"method: {v.plan.sequential.method}.",
-    ]
+    ] + _small_first_stage(v.plan.stages[0])
+
+
+#: The first stage below which Welch's t is liberal on two-point (solved/collapsed) metrics.
+SMALL_FIRST_STAGE = 10
+
+
+def _small_first_stage(seeds: int) -> list[str]:
+    """A caution when the first stage is small (docs/statistics.md, the staged gate's simulation)."""
+    if seeds >= SMALL_FIRST_STAGE:
+        return []
+    return [f"caution: the first stage has {seeds} seeds; on two-point metrics (solved or collapsed returns) "
+            f"Welch's t with fewer than {SMALL_FIRST_STAGE} seeds fails more often than alpha (0.080 at alpha 0.05 "
+            f"for a drop of one margin in the simulation of docs/statistics.md): start such metrics at "
+            f"{SMALL_FIRST_STAGE} seeds."]
 
 
 class StagedReport:
