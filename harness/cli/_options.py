@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import tempfile
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -10,7 +11,8 @@ from typing import Any
 from harness.core.errors import HarnessError
 from harness.execute import EXECUTORS
 
-__all__ = ["add_execution_arguments", "execution_options", "positive_float", "positive_int", "write_report_files"]
+__all__ = ["add_execution_arguments", "execution_options", "finish_verdict", "positive_float", "positive_int",
+           "prepare_rerun", "train_rerun", "write_report_files"]
 
 
 def positive_int(text: str) -> int:
@@ -103,3 +105,73 @@ def write_report_files(verdict: Any, args: argparse.Namespace, console: Any,
             atomic_write_text(path, render(verdict))
             console.print(f"wrote {path}", highlight=False)
 
+
+
+def prepare_rerun(args: argparse.Namespace, manifest: Any) -> tuple[Path, dict[str, Any] | None]:
+    """The rerun's results folder and the runner's options (``None`` with ``--no-run``).
+
+    The folder is ``--results``, else ``results/<manifest name>/``; with ``--fresh`` a new folder
+    beside it, created only after the execution options checked out, and the cache is off.
+
+    Raises
+    ------
+    HarnessError
+        Bad execution options (see :func:`execution_options`); nothing is created.
+    """
+    folder = Path(args.results) if args.results else Path("results") / manifest.name
+    if args.no_run:
+        return folder, None
+    options = execution_options(args)
+    if args.fresh:  # a new folder and no cache: every seed really trains
+        options["use_cache"] = False
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
+    return folder, options
+
+
+def train_rerun(manifest: Any, folder: Path, options: dict[str, Any], console: Any, *, first: int | None = None) -> Any:
+    """Train (resume, or take from the cache) the manifest's seeds into ``folder`` with a live display.
+
+    ``options`` come from :func:`prepare_rerun`; ``first`` trains only the first that many seeds
+    (a stage of the staged gate). Returns the runner's ``RunOutcome``.
+
+    Raises
+    ------
+    RunFailedError
+        If any run failed (the message lists the seeds and reasons).
+    """
+    from harness.core.errors import RunFailedError
+    from harness.execute.runner import run_manifest
+    from harness.gate.curveset import last_line
+    from harness.report.progress import RunProgress
+
+    try:
+        with RunProgress(console) as progress:  # draws nothing when the console is not a terminal
+            outcome = run_manifest(manifest, results_dir=folder, first=first, on_event=progress, **options)
+    except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
+        raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
+    failed = outcome.results.failed()
+    if failed:
+        lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
+        raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
+    return outcome
+
+
+def finish_verdict(verdict: Any, args: argparse.Namespace, console: Any, report: Any,
+                   renderers: tuple[Callable[[Any], str], Callable[[Any], str], Callable[[Any], str]]) -> int:
+    """Print ``report`` (the terminal renderable), write the report files and ``--plot``; return the exit code.
+
+    For a verdict of one manifest (fixed or staged): the plot shows its baseline's and candidate's curves.
+    """
+    from harness.cli import ExitCode
+
+    console.print(report)
+    write_report_files(verdict, args, console, renderers)
+    if args.plot:
+        from harness.report.plot import PlotUnavailableError, plot_curves
+
+        try:
+            console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}", highlight=False)
+        except PlotUnavailableError as exc:
+            console.print(f"plot skipped: {exc}", highlight=False)
+    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-import tempfile
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -17,9 +16,9 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import execution_options, write_report_files
-from harness.core.errors import ConfigError, HarnessError, RunFailedError
-from harness.gate.staged import Stage, StagedVerdict, plan_stages, staged_verify
+from harness.cli._options import finish_verdict, prepare_rerun, train_rerun
+from harness.core.errors import ConfigError, RunFailedError
+from harness.gate.staged import Stage, plan_stages, staged_verify
 from harness.manifest.policy import GatePolicy
 from harness.stats.boundaries import BOUNDARY_KINDS
 
@@ -57,43 +56,20 @@ def stage_policy(policy: GatePolicy, args: argparse.Namespace) -> GatePolicy:
         raise ConfigError(f"--{exc.key.replace('_', '-')}: " + str(exc).split(": ", 1)[-1]) from None
 
 
-def _runner(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Callable, Path]:
-    from harness.execute.runner import run_manifest
-    from harness.gate.curveset import last_line
-    from harness.report.progress import RunProgress
+def _obtain(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Callable, Path]:
+    """``obtain(n)`` of :func:`staged_verify`: each stage trains into one folder, or reads it (``--no-run``)."""
+    from harness.store.results import read_results
 
-    folder = Path(args.results) if args.results else Path("results") / manifest.name
-    options = execution_options(args)
-    if args.fresh:  # one new folder for every stage, and no cache: every seed really trains
-        options["use_cache"] = False
-        folder.parent.mkdir(parents=True, exist_ok=True)
-        folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
+    folder, options = prepare_rerun(args, manifest)
+    if options is None:  # --no-run
+        results = read_results(folder)
+        return (lambda n: (first_seeds(results, n), {i: "resumed" for i in range(n)})), folder
 
     def obtain(n: int) -> tuple[Any, dict[int, str]]:
         console.print(f"stage: the first {n} of {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...",
                       highlight=False)
-        try:
-            with RunProgress(console) as progress:
-                outcome = run_manifest(manifest, results_dir=folder, first=n, on_event=progress, **options)
-        except ImportError as exc:
-            raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
-        failed = outcome.results.failed()
-        if failed:
-            lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
-            raise RunFailedError(f"{len(failed)} of {n} runs failed (results in {folder}):\n{lines}")
+        outcome = train_rerun(manifest, folder, options, console, first=n)
         return outcome.results, dict(outcome.sources)
-
-    return obtain, folder
-
-
-def _stored(args: argparse.Namespace, manifest: Any, console: Console) -> tuple[Callable, Path]:
-    from harness.store.results import read_results
-
-    folder = Path(args.results) if args.results else Path("results") / manifest.name
-    results = read_results(folder)
-
-    def obtain(n: int) -> tuple[Any, dict[int, str]]:
-        return first_seeds(results, n), {i: "resumed" for i in range(n)}
 
     return obtain, folder
 
@@ -119,28 +95,15 @@ def verify_staged(args: argparse.Namespace, manifest: Any, policy: GatePolicy, b
     if manifest.references:
         console.print("note: the staged gate checks the baseline only; the manifest's [[reference]] tables are "
                       "checked by the fixed gate (--stages off)", highlight=False)
-    obtain, folder = (_stored if args.no_run else _runner)(args, manifest, console)
+    obtain, folder = _obtain(args, manifest, console)
     try:
         verdict = staged_verify(manifest, baseline, obtain, plan=plan, policy=policy, folder=str(folder),
                                 on_stage=lambda s: console.print(stage_line(plan, s), highlight=False))
     except RunFailedError as exc:
         console.print(f"runs failed: {exc}", highlight=False, soft_wrap=True)
         return ExitCode.RUNS_FAILED
-    return finish_staged(verdict, args, console)
-
-
-def finish_staged(verdict: StagedVerdict, args: argparse.Namespace, console: Console) -> ExitCode:
-    """Print the terminal report, write the requested report files, map the gate to an exit code."""
     from harness.report.staged import StagedReport, render_staged_junit, render_staged_markdown, staged_text
 
-    console.print(StagedReport(verdict))
-    write_report_files(verdict, args, console, (render_staged_markdown, staged_text, render_staged_junit))
-    if args.plot:
-        from harness.report.plot import PlotUnavailableError, plot_curves
+    return finish_verdict(verdict, args, console, StagedReport(verdict),
+                          (render_staged_markdown, staged_text, render_staged_junit))
 
-        try:
-            console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}",
-                          highlight=False)
-        except PlotUnavailableError as exc:
-            console.print(f"plot skipped: {exc}", highlight=False)
-    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED

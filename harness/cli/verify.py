@@ -8,16 +8,15 @@ Exit codes (:class:`harness.cli.ExitCode`): 0 gate passed, 1 gate failed,
 from __future__ import annotations
 
 import argparse
-import tempfile
 from pathlib import Path
 from typing import Any
 
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import add_execution_arguments, execution_options, write_report_files
+from harness.cli._options import add_execution_arguments, finish_verdict, prepare_rerun, train_rerun
 from harness.cli.staged import add_stage_arguments, stage_policy, verify_staged
-from harness.core.errors import ConfigError, HarnessError, RunFailedError
+from harness.core.errors import ConfigError, RunFailedError
 from harness.manifest.policy import KNOWN_METRICS, GatePolicy
 from harness.stats.drop_rules import DEFAULT_RULE, DROP_RULES
 from harness.gate.verify import Verdict
@@ -50,32 +49,13 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
     RunFailedError
         If any run failed (the message lists the seeds and reasons).
     """
-    from harness.gate.curveset import last_line
     from harness.store.results import read_results
 
-    default = Path("results") / manifest.name
-    if args.no_run:
-        folder = Path(args.results) if args.results else default
+    folder, options = prepare_rerun(args, manifest)
+    if options is None:  # --no-run
         return read_results(folder), folder
-    from harness.report.progress import RunProgress
-    from harness.execute.runner import run_manifest
-
-    folder = Path(args.results) if args.results else default
-    options = execution_options(args)
-    if args.fresh:
-        options["use_cache"] = False
-        folder.parent.mkdir(parents=True, exist_ok=True)
-        folder = Path(tempfile.mkdtemp(prefix=f"{manifest.name}-fresh-", dir=folder.parent))
     console.print(f"running {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...", highlight=False)
-    try:
-        with RunProgress(console) as progress:  # draws nothing when the console is not a terminal
-            outcome = run_manifest(manifest, results_dir=folder, on_event=progress, **options)
-    except ImportError as exc:  # the optional dask extra is missing: the message says how to install it
-        raise HarnessError(f"cannot run {manifest.name}: {exc}") from None
-    failed = outcome.results.failed()
-    if failed:
-        lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
-        raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
+    outcome = train_rerun(manifest, folder, options, console)
     sources = {s: sum(1 for v in outcome.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
     console.print("runs: " + ", ".join(f"{n} {s}" for s, n in sources.items() if n), highlight=False)
     return outcome.results, folder
@@ -128,17 +108,9 @@ def finish(verdict: Verdict, args: argparse.Namespace, console: Console) -> Exit
     from harness.report.jsonreport import verdict_text
     from harness.report.junit import render_junit
     from harness.report.markdown import render_markdown
-    from harness.report.plot import PlotUnavailableError, plot_curves
     from harness.report.terminal import VerdictReport
 
-    console.print(VerdictReport(verdict))
-    write_report_files(verdict, args, console, (render_markdown, verdict_text, render_junit))
-    if args.plot:
-        try:
-            console.print(f"wrote {plot_curves(verdict.baseline_set, verdict.candidate_set, args.plot)}", highlight=False)
-        except PlotUnavailableError as exc:
-            console.print(f"plot skipped: {exc}", highlight=False)
-    return ExitCode.OK if verdict.passed else ExitCode.GATE_FAILED
+    return finish_verdict(verdict, args, console, VerdictReport(verdict), (render_markdown, verdict_text, render_junit))
 
 
 def _handle(args: argparse.Namespace, console: Console) -> ExitCode:
