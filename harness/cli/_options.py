@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import argparse
 import tempfile
-from collections.abc import Callable
+from collections import Counter
+from collections.abc import Callable, Iterable
 from pathlib import Path
 from typing import Any
 
@@ -12,7 +13,7 @@ from harness.core.errors import HarnessError
 from harness.execute import EXECUTORS
 
 __all__ = ["add_execution_arguments", "execution_options", "finish_verdict", "positive_float", "positive_int",
-           "prepare_rerun", "train_rerun", "write_report_files"]
+           "prepare_rerun", "sources_line", "train_rerun", "write_report_files"]
 
 
 def positive_int(text: str) -> int:
@@ -155,6 +156,12 @@ def train_rerun(manifest: Any, folder: Path, options: dict[str, Any], console: A
         lines = "\n".join(f"  seed {r.spec.seed.label}: {last_line(r.failure)}" for r in failed)
         raise RunFailedError(f"{len(failed)} of {len(outcome.results.records)} runs failed (results in {folder}):\n{lines}")
     return outcome
+
+
+def sources_line(sources: Iterable[str]) -> str:
+    """``runs: 3 trained, 7 resumed``: how many runs came from where (the runner's ``sources`` values)."""
+    counts = Counter(sources)
+    return "runs: " + ", ".join(f"{counts[s]} {s}" for s in ("trained", "cache", "resumed") if counts[s])
 
 
 def finish_verdict(verdict: Any, args: argparse.Namespace, console: Any, report: Any,

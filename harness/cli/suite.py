@@ -14,7 +14,6 @@ import dataclasses
 import os
 import tempfile
 import time
-from collections import Counter
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -22,7 +21,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import execution_options, write_report_files
+from harness.cli._options import execution_options, sources_line, write_report_files
 from harness.core.errors import HarnessError, RunFailedError
 
 __all__ = ["is_suite", "record_suite", "run_suite_command", "verify_suite_command"]
@@ -91,9 +90,7 @@ def _results(args: argparse.Namespace, suite: Any, baselines: dict, console: Con
     failed = _failures(outcomes)
     if failed:
         raise RunFailedError(failed)
-    sources = Counter(s for o in outcomes for s in o.sources.values())
-    console.print("runs: " + ", ".join(f"{sources[s]} {s}" for s in ("trained", "cache", "resumed") if sources[s]),
-                  highlight=False)
+    console.print(sources_line(s for o in outcomes for s in o.sources.values()), highlight=False)
     return [o.results for o in outcomes], folders
 
 

@@ -14,7 +14,7 @@ from typing import Any
 from rich.console import Console
 
 from harness.cli import ExitCode
-from harness.cli._options import add_execution_arguments, finish_verdict, prepare_rerun, train_rerun
+from harness.cli._options import add_execution_arguments, finish_verdict, prepare_rerun, sources_line, train_rerun
 from harness.cli.staged import add_stage_arguments, stage_policy, verify_staged
 from harness.core.errors import ConfigError, RunFailedError
 from harness.manifest.policy import KNOWN_METRICS, GatePolicy
@@ -56,8 +56,7 @@ def obtain_results(args: argparse.Namespace, manifest: Any, console: Console) ->
         return read_results(folder), folder
     console.print(f"running {len(manifest.seeds)} seeds of {manifest.name} into {folder} ...", highlight=False)
     outcome = train_rerun(manifest, folder, options, console)
-    sources = {s: sum(1 for v in outcome.sources.values() if v == s) for s in ("trained", "cache", "resumed")}
-    console.print("runs: " + ", ".join(f"{n} {s}" for s, n in sources.items() if n), highlight=False)
+    console.print(sources_line(outcome.sources.values()), highlight=False)
     return outcome.results, folder
 
 
