@@ -246,7 +246,7 @@ def check_fresh_sets(
         for c in verdict.checks:
             tally = verdicts.setdefault(c.name, {})
             tally[c.verdict] = tally.get(c.verdict, 0) + 1
-    fresh = dataclasses.replace(pool, runs=tuple(pool.runs[i] for i in range(len(pool.runs)) if i not in set(taken)))
+    fresh = dataclasses.replace(pool, runs=tuple(r for r in pool.runs if r.seed not in own))
     draws = tuple(
         baseline_draw(m, metric_values(m, baseline, policy, scale.threshold).values,
               metric_values(m, fresh, policy, scale.threshold).values)

@@ -15,8 +15,8 @@ differences that make the suite one decision:
   intervals (``1 - 2 alpha``) and equivalence tests use the same level. Equivalence
   is an intersection-union test and needs no multiplicity correction (Berger 1982).
 
-Each task's gate then applies that task's own policy (rule, margins, ``strict``,
-``ignore_small``) to its family-adjusted checks; the suite passes when every task
+Each task's gate then applies that task's own policy (rule, margins, ``strict``) to its
+family-adjusted checks; the suite passes when every task
 passes. A pass is no proof that the code is correct, and an inconclusive check is
 not evidence of equivalence.
 """
