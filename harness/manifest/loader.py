@@ -40,7 +40,7 @@ from harness.core.spec import EvaluationPlan, RunSpec, TaskSpec, sha256_of
 from harness.trainers.command import COMMAND_TRAINER, CommandSettings, source_files
 from harness.trainers.registry import resolve_trainer
 
-__all__ = ["Manifest", "load_manifest", "parse_manifest"]
+__all__ = ["Manifest", "load_manifest", "parse_manifest", "read_toml_file"]
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
 
@@ -384,11 +384,7 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
         raise TypeError(f"`text` must be the manifest's TOML text (a str), got {type(text).__name__}")
     where = None if path is None else str(path)
     search_path = None if path is None else Path(path).resolve().parent
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ManifestError(f"is not valid TOML: {exc}; fix the syntax there", path=where) from None
-    table = config.resolve(_ManifestFile, data, path=where)
+    table = config.resolve(_ManifestFile, _parse_toml(text, where), path=where)
     task = table.task
     step_limit = task.episode_step_limit
     if not task.gymnasium:
@@ -451,12 +447,30 @@ def parse_manifest(text: str, *, path: str | os.PathLike | None = None) -> Manif
     )
 
 
-def load_manifest(path: str | os.PathLike) -> Manifest:
-    """Read and validate the manifest at ``path`` (see :func:`parse_manifest`)."""
+def _parse_toml(text: str, where: str | None) -> dict[str, Any]:
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ManifestError(f"is not valid TOML: {exc}; fix the syntax there", path=where) from None
+
+
+def _read_text(path: str | os.PathLike) -> str:
+    try:
+        return Path(path).read_text(encoding="utf-8")
     except FileNotFoundError:
         raise ManifestError("no such file; check the path", path=str(path)) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ManifestError(f"cannot be read as UTF-8 text ({exc})", path=str(path)) from None
-    return parse_manifest(text, path=path)
+
+
+def read_toml_file(path: str | os.PathLike) -> dict[str, Any]:
+    """The TOML tables of a file (a manifest or a suite file), unchecked.
+
+    Raises ``ManifestError`` naming the file when it is missing, not UTF-8 text or not valid TOML.
+    """
+    return _parse_toml(_read_text(path), str(path))
+
+
+def load_manifest(path: str | os.PathLike) -> Manifest:
+    """Read and validate the manifest at ``path`` (see :func:`parse_manifest`)."""
+    return parse_manifest(_read_text(path), path=path)

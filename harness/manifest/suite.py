@@ -22,13 +22,12 @@ from __future__ import annotations
 
 import dataclasses
 import os
-import tomllib
 from collections.abc import Sequence
 from pathlib import Path
 
 from harness.core import config
 from harness.core.errors import ConfigError, ManifestError
-from harness.manifest.loader import Manifest, load_manifest
+from harness.manifest.loader import Manifest, load_manifest, read_toml_file
 
 __all__ = ["DEFAULT_SUITE_ALPHA", "Suite", "is_suite_file", "load_suite"]
 
@@ -87,29 +86,18 @@ class Suite:
             raise ValueError("a suite needs at least one manifest")
 
 
-def _read_toml(path: Path) -> dict:
-    try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ManifestError("no such file; check the path", path=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ManifestError(f"cannot be read as UTF-8 text ({exc})", path=str(path)) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ManifestError(f"is not valid TOML: {exc}; fix the syntax there", path=str(path)) from None
-
-
 def is_suite_file(path: str | os.PathLike) -> bool:
     """True when ``path`` is a TOML file with a ``[suite]`` table (False for a folder or a manifest).
 
     Raises ``ManifestError`` when the file cannot be read or is not valid TOML.
     """
     path = Path(path)
-    return path.is_file() and "suite" in _read_toml(path)
+    return path.is_file() and "suite" in read_toml_file(path)
 
 
 def _folder_members(folder: Path, *, path: str | None, key: str | None) -> list[Path]:
     found = sorted(p for p in folder.glob("*.toml") if p.is_file())
-    manifests = [p for p in found if "suite" not in _read_toml(p)]
+    manifests = [p for p in found if "suite" not in read_toml_file(p)]
     if not manifests:
         raise ManifestError(
             f"the folder {folder} holds no manifest (*.toml without a [suite] table); "
@@ -125,7 +113,7 @@ def _expand(item: Path, *, path: str | None, key: str | None) -> list[Path]:
     if not item.exists():
         raise ManifestError(f"no such manifest file or folder: {item}; fix the path (paths in a suite file are "
                             "relative to the suite file)", path=path or str(item), key=key)
-    if "suite" in _read_toml(item):
+    if "suite" in read_toml_file(item):
         raise ManifestError(f"{item} is a suite file; a suite lists manifests, not other suites: pass it alone "
                             "or list its manifests", path=path or str(item), key=key)
     return [item]
@@ -145,7 +133,7 @@ def _check_names(manifests: Sequence[Manifest], *, path: str | None, keys: Seque
 
 def _load_suite_file(path: Path) -> Suite:
     where = str(path)
-    table = config.resolve(_SuiteFile, _read_toml(path), path=where).suite
+    table = config.resolve(_SuiteFile, read_toml_file(path), path=where).suite
     files: list[Path] = []
     keys: list[str] = []
     for i, member in enumerate(table.members):
@@ -185,7 +173,7 @@ def load_suite(items: Sequence[str | os.PathLike], *, alpha: float | None = None
     paths = [Path(p) for p in items]
     if not paths:
         raise ManifestError("no manifest given; pass a suite file, a folder of manifests or manifest files")
-    suites = [p for p in paths if p.is_file() and "suite" in _read_toml(p)]
+    suites = [p for p in paths if p.is_file() and "suite" in read_toml_file(p)]
     if suites and len(paths) > 1:
         raise ManifestError("a suite file must be given alone; list its manifests in its `members` instead",
                             path=str(suites[0]), key="suite.members")
