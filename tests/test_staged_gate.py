@@ -231,7 +231,7 @@ def test_stages_off_runs_the_fixed_gate(at):
 
 
 def test_first_stage_of_ten_seeds_or_more_carries_no_caution():
-    from harness.report.staged import _small_first_stage
+    from harness.stats.sequential_design import small_first_stage
 
-    assert _small_first_stage(10) == [] and _small_first_stage(20) == []
-    assert "first stage has 9 seeds" in _small_first_stage(9)[0]
+    assert small_first_stage(10) == [] and small_first_stage(20) == []
+    assert "first stage has 9 seeds" in small_first_stage(9)[0]

@@ -16,6 +16,7 @@ from rich.table import Table
 from rich.text import Text
 
 from harness.gate.staged import StagedVerdict
+from harness.stats.sequential_design import small_first_stage
 from harness.gate.verify import WHAT_A_PASS_MEANS
 from harness.report._rows import num
 from harness.report.jsonreport import json_text, outcome_json, provenance_json
@@ -67,21 +68,8 @@ def _notes(v: StagedVerdict) -> list[str]:
         f"margins: {margins}; drop tolerated before 'worse': {shifts}; futility rules out a drop of one margin "
         "beyond the tolerated one (a futility pass is no proof of equivalence).",
         f"method: {v.plan.sequential.method}.",
-    ] + _small_first_stage(v.plan.stages[0])
+    ] + small_first_stage(v.plan.stages[0])
 
-
-#: The first stage below which Welch's t is liberal on two-point (solved/collapsed) metrics.
-SMALL_FIRST_STAGE = 10
-
-
-def _small_first_stage(seeds: int) -> list[str]:
-    """A caution when the first stage is small (docs/statistics.md, the staged gate's simulation)."""
-    if seeds >= SMALL_FIRST_STAGE:
-        return []
-    return [f"caution: the first stage has {seeds} seeds; on two-point metrics (solved or collapsed returns) "
-            f"Welch's t with fewer than {SMALL_FIRST_STAGE} seeds fails more often than alpha (0.080 at alpha 0.05 "
-            f"for a drop of one margin in the simulation of docs/statistics.md): start such metrics at "
-            f"{SMALL_FIRST_STAGE} seeds."]
 
 
 class StagedReport:
