@@ -18,19 +18,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from crafting import cli  # exit code and the terminal output with its line wrapping undone
 from scipy import stats as sps
 
 from harness.cli import ExitCode
-from harness.gate.metrics import final_return
-from harness.store.baseline import read_baseline
-from test_cli_verify import BROKEN_RULE, FLAKY, at, manifest_text  # noqa: F401 (`at` is a fixture: it uses this module's `project`)
-from test_cli_verify import cli as _cli
-
-
-def cli(*args: str) -> tuple[int, str]:
-    """Exit code and the terminal output with its line wrapping undone."""
-    code, out = _cli(Path.cwd(), *args)
-    return code, " ".join(out.split())
+from test_cli_verify import BROKEN_RULE, FLAKY, _final_values, _snapshot, manifest_text
+from test_cli_verify import at  # noqa: F401 (a fixture: it uses this module's `project`)
 
 CHECK = """
     [check]
@@ -65,6 +58,17 @@ def _sources(folder: Path) -> list[str]:
     return [run.get("source") for run in json.loads((folder / "index.json").read_text())["runs"]]
 
 
+def _welch(cand: np.ndarray, base: np.ndarray, shift: float, alternative: str) -> float:
+    """Welch's one-sided p-value of the candidate shifted by ``shift`` (scipy.stats.ttest_ind, equal_var=False)."""
+    return float(sps.ttest_ind(cand + shift, base, equal_var=False, alternative=alternative).pvalue)
+
+
+def _obf_first_look(alpha: float, information: float) -> float:
+    """The nominal level of the first look: the alpha an O'Brien–Fleming-type spending function has spent
+    by ``information`` (Lan & DeMets 1983: 2 - 2 Phi(z_{alpha/2} / sqrt(t))), by scipy.stats.norm."""
+    return 2 - 2 * sps.norm.cdf(sps.norm.ppf(1 - alpha / 2) / math.sqrt(information))
+
+
 def test_unchanged_rerun_stops_early_as_equivalent(at):
     code, out = cli("verify", "lake.toml", "--workers", "2", "--json", "out/eq.json", "--markdown", "out/eq.md",
                     "--junit", "out/eq.xml")
@@ -79,27 +83,20 @@ def test_unchanged_rerun_stops_early_as_equivalent(at):
     assert report["seeds"] == {"used": 3, "fixed": 6, "saved": 3, "baseline": 6, "trained_now": 0, "reused": 3}
     assert report["exact"]["status"] == "identical"  # the bitwise check ran on the 3 seeds used
     # The look against scipy.stats: Welch's one-sided test of "worse" and the two one-sided tests.
-    base = np.array([final_return(r.curve, fraction=0.1) for r in read_baseline(at / "baselines/lake.json").runs])
+    base = np.array(_final_values(at / "baselines/lake.json"))
     cand = base[:3]  # an unchanged rerun reproduces the baseline's first seeds bitwise
     look = report["stages"][0]["metrics"]["final"]
     assert look["estimate"] == pytest.approx(cand.mean() - base.mean(), abs=1e-12)
     # The default rule (drop-beyond-margin) tests H0: drop <= margin, i.e. Welch on the candidate shifted up by it.
     assert report["plan"]["shifts"] == {"final": 0.3} and report["gate"]["rule"] == "drop-beyond-margin"
-    assert look["pvalue_worse"] == pytest.approx(sps.ttest_ind(cand + 0.3, base, equal_var=False,
-                                                               alternative="less").pvalue, rel=1e-9)
-    tost = max(sps.ttest_ind(cand + 0.3, base, equal_var=False, alternative="greater").pvalue,
-               sps.ttest_ind(cand - 0.3, base, equal_var=False, alternative="less").pvalue)
+    assert look["pvalue_worse"] == pytest.approx(_welch(cand, base, 0.3, "less"), rel=1e-9)
+    tost = max(_welch(cand, base, 0.3, "greater"), _welch(cand, base, -0.3, "less"))
     assert look["pvalue_equivalence"] == pytest.approx(tost, rel=1e-9)
     # Look 1, 3 vs 6 baseline seeds: information 1/(1/6 + 1/3) of the last look's 1/(1/6 + 1/6) = 2/3.
-    spent = 2 - 2 * sps.norm.cdf(sps.norm.ppf(1 - 0.05 / 2) / math.sqrt(2 / 3))
-    assert look["nominal_worse"] == pytest.approx(spent, rel=1e-6)
+    assert look["nominal_worse"] == pytest.approx(_obf_first_look(0.05, 2 / 3), rel=1e-6)
     assert "| 1 | 3/6 | final |" in (at / "out/eq.md").read_text()
     suite = ET.parse(at / "out/eq.xml").getroot()
     assert suite.get("failures") == "0" and {c.get("name") for c in suite.iter("testcase")} >= {"stage 1", "check final"}
-
-
-def _welch(cand: np.ndarray, base: np.ndarray, shift: float, alternative: str) -> float:
-    return float(sps.ttest_ind(cand + shift, base, equal_var=False, alternative=alternative).pvalue)
 
 
 def test_futility_stop_passes_and_is_reported_apart_from_equivalence(at):
@@ -107,9 +104,9 @@ def test_futility_stop_passes_and_is_reported_apart_from_equivalence(at):
     # margins (drop-beyond-margin: shift = margin). The thresholds come from scipy.stats: TOST against the
     # O'Brien–Fleming-type spending at information 2/3 (Lan & DeMets 1983), and futility at the one interim
     # look, which spends all of stage_futility = 0.05 there (a one-look design is the fixed test).
-    base = np.array([final_return(r.curve, fraction=0.1) for r in read_baseline(at / "baselines/lake.json").runs])
+    base = np.array(_final_values(at / "baselines/lake.json"))
     cand = base[:3]  # an unchanged rerun reproduces the baseline's first seeds bitwise
-    nominal_eq = 2 - 2 * sps.norm.cdf(sps.norm.ppf(1 - 0.05 / 2) / math.sqrt(2 / 3))
+    nominal_eq = _obf_first_look(0.05, 2 / 3)
     window = [m for m in np.linspace(0.005, 0.5, 200)
               if max(_welch(cand, base, m, "greater"), _welch(cand, base, -m, "less")) >= 1.05 * nominal_eq
               and _welch(cand, base, 2 * m, "greater") < 0.95 * 0.05]
@@ -186,11 +183,6 @@ def test_failed_seed_stops_the_stage_with_runs_failed(at):
     assert code == ExitCode.RUNS_FAILED, out
     assert "1 of 3 runs failed" in out and "injected failure for the second seed" in out
     assert not (at / "out/flaky.json").exists()
-
-
-def _snapshot(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()
-            and "cache" not in p.parts}
 
 
 @pytest.mark.parametrize(("manifest", "args", "message"), [
