@@ -7,6 +7,7 @@ workers) are recorded once per module as a suite; each test then runs a variatio
 from __future__ import annotations
 
 import json
+import re
 import textwrap
 import xml.etree.ElementTree as ET
 from pathlib import Path
@@ -15,6 +16,8 @@ import gymnasium
 import numpy as np
 import pytest
 from test_cli_verify import BROKEN_RULE, at, cli, manifest_text  # noqa: F401  (`at` is a fixture: chdir into `project`)
+from test_staged_gate import CHECK as STAGED  # [check] final, margin 0.3, stages [3, 6]
+from test_staged_gate import _obf_first_look
 
 from harness.cli import ExitCode
 
@@ -120,21 +123,11 @@ def test_broken_task_fails_the_suite_alone(at):
     assert suite[smallest]["pvalue_worse"] == pytest.approx(2 * single[smallest]["pvalue_worse"])
 
 
-STAGED = """
-    [check]
-    metrics = ["final"]
-    margin = 0.3
-    stages = [3, 6]
-    """
-
-
 def test_staged_member_runs_in_stages_inside_the_suite(at):
     # lake-a staged (3 then 6 seeds), lake-b fixed; unchanged reruns. Bonferroni over the 2 tasks: each at
     # alpha / 2 = 0.025. The staged task's first boundary is the Lan & DeMets (1983) O'Brien–Fleming-type
     # spending at 0.025 and information 2/3 (3 candidate vs 6 baseline seeds): 2 - 2 Phi(z_{0.0125} / sqrt(2/3)),
-    # computed here with scipy.stats.norm.
-    from scipy import stats as sps
-
+    # computed with scipy.stats.norm (test_staged_gate._obf_first_look).
     (at / "staged").mkdir(exist_ok=True)
     (at / "staged/a.toml").write_text(manifest_text("lake-a", extra=STAGED))
     (at / "staged/b.toml").write_text(manifest_text("lake-b", step_size=0.2))
@@ -151,8 +144,8 @@ def test_staged_member_runs_in_stages_inside_the_suite(at):
     assert report["family"]["alpha_per_task"] == 0.025 and report["family"]["checks"] == 3
     assert staged["plan"]["alpha"] == 0.025 and fixed["policy"]["alpha"] == 0.025
     assert staged["seeds"]["used"] == 3 and staged["decision"] in ("equivalent", "futility")
-    spent = 2 - 2 * sps.norm.cdf(sps.norm.isf(0.025 / 2) / np.sqrt(2 / 3))
-    assert staged["stages"][0]["metrics"]["final"]["nominal_worse"] == pytest.approx(spent, rel=1e-6)
+    assert staged["stages"][0]["metrics"]["final"]["nominal_worse"] == pytest.approx(_obf_first_look(0.025, 2 / 3),
+                                                                                  rel=1e-6)
     assert [t["manifest"] for t in report["aggregate"]["tasks"]] == ["lake-a", "lake-b"]
     assert len(report["aggregate"]["tasks"][0]["candidate"]) == 3  # the staged task's seeds used
     assert len(json.loads((at / "results-staged/lake-a/index.json").read_text())["runs"]) == 3
@@ -230,5 +223,5 @@ def test_bad_suite_exits_2_naming_file_and_key_and_trains_nothing(tmp_path, monk
     monkeypatch.setenv("RLHARNESS_CACHE_DIR", str(tmp_path / "cache"))
     code, out = cli(tmp_path, "verify", *args)
     assert code == ExitCode.BAD_INPUT, out
-    assert __import__("re").search(message, " ".join(out.split())), out
+    assert re.search(message, " ".join(out.split())), out
     assert not Path("results").exists() and not Path("cache").exists()
