@@ -16,7 +16,7 @@ import stat
 
 import pytest
 from crafting import TOY, cli
-from runner_toys import toy_specs
+from runner_toys import folder_bytes, toy_specs
 
 from harness.cli import ExitCode
 from harness.core.curves import Checkpoint, LearningCurve
@@ -92,10 +92,10 @@ def test_a_file_where_a_cache_subfolder_should_be_is_bad_input(tmp_path):
 def test_a_cache_hit_still_gives_the_same_bytes(tmp_path):
     first = _run(tmp_path, tmp_path / "cache")
     assert first[0] == ExitCode.OK
-    before = {p.name: p.read_bytes() for p in (tmp_path / "res").glob("seed-*.json")}
+    before = folder_bytes(tmp_path / "res")
     for p in (tmp_path / "res").glob("seed-*.json"):
         p.unlink()
     code, text = _run(tmp_path, tmp_path / "cache")
     assert code == ExitCode.OK and "(3 cache)" in text
-    assert {p.name: p.read_bytes() for p in (tmp_path / "res").glob("seed-*.json")} == before
+    assert folder_bytes(tmp_path / "res") == before
     assert dataclasses.is_dataclass(RunRecord)

@@ -17,20 +17,16 @@ from pathlib import Path
 import pytest
 
 from crafting import cli as _cli
-from crafting import copy_results, record, resign_results
+from crafting import copy_results, record, resign_baseline, resign_results
 
 from harness.cli import ExitCode
 from harness.core.spec import sha256_of
+
 
 @pytest.fixture(scope="module")
 def recorded(tmp_path_factory):
     """The toy manifest, its results folder and its baseline (3 seeds)."""
     return record(tmp_path_factory.mktemp("recorded"))
-
-
-def _resign(data: dict) -> dict:
-    data = {k: v for k, v in data.items() if k != "checksum"}
-    return {**data, "checksum": sha256_of(data)}
 
 
 def _baseline(recorded: Path) -> dict:
@@ -68,7 +64,8 @@ BASELINE_EDITS = {
 @pytest.mark.parametrize("case", sorted(BASELINE_EDITS))
 def test_a_crafted_baseline_with_a_valid_checksum_is_refused_naming_the_field(recorded, tmp_path, case):
     edit, field = BASELINE_EDITS[case]
-    code, text = _verify_with(recorded, tmp_path, json.dumps(_resign(_edit(_baseline(recorded), edit))))
+    crafted = resign_baseline(_edit(_baseline(recorded), edit), rehash_config=False)  # checksum valid again
+    code, text = _verify_with(recorded, tmp_path, crafted)
     assert code == ExitCode.BAD_INPUT, text
     assert field in text and "Traceback" not in text
 
