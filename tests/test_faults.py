@@ -154,7 +154,7 @@ def _runner_process(folder: Path, cache: Path, pause: float) -> subprocess.Popen
     return subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
 
 
-def _wait_for(predicate, timeout: float) -> None:
+def _wait_for(predicate, timeout: float = 60) -> None:
     end = time.monotonic() + timeout
     while not predicate():
         if time.monotonic() > end:

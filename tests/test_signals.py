@@ -16,12 +16,12 @@ import os
 import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
 from crafting import TOY, cli
 from runner_toys import folder_bytes, toy_specs
+from test_faults import _wait_for
 
 from harness.core.atomic import sweep_stale_temporaries
 from harness.execute import Task, WorkerResult
@@ -30,6 +30,7 @@ from harness.execute.runner import run_specs
 
 TESTS = Path(__file__).parent
 ROOT = TESTS.parent
+
 
 def _env() -> dict[str, str]:
     return {**os.environ, "PYTHONPATH": os.pathsep.join([str(TESTS), str(ROOT), os.environ.get("PYTHONPATH", "")])}
@@ -42,14 +43,6 @@ def _start(tmp_path: Path, command: str, settings: str = "pause = 0.3", *extra: 
             "--no-cache", "--workers", "1", *extra]
     return subprocess.Popen(argv, cwd=tmp_path, env=_env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                             text=True, start_new_session=True)
-
-
-def _wait_for(predicate, timeout: float = 60) -> None:
-    end = time.monotonic() + timeout
-    while not predicate():
-        if time.monotonic() > end:
-            raise AssertionError("timed out waiting")
-        time.sleep(0.02)
 
 
 @pytest.mark.parametrize(("command", "how"), [("run", "SIGTERM"), ("verify", "ctrl-c")])
