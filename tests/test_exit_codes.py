@@ -8,7 +8,6 @@ input, 3 runs failed, 70 internal error (BSD sysexits.h ``EX_SOFTWARE``, as Pyth
 from __future__ import annotations
 
 import os
-import textwrap
 
 import pytest
 from crafting import TOY
@@ -100,6 +99,6 @@ def test_verify_with_every_steps_to_threshold_censored_is_a_result_not_a_crash(t
 def test_manifest_error_class_is_what_trainer_import_failures_raise(tmp_path):
     from harness.trainers.registry import resolve_trainer
 
-    (tmp_path / "quits_green2.py").write_text(textwrap.dedent("import sys\nsys.exit(0)\n"))
+    (tmp_path / "quits_green2.py").write_text("import sys\nsys.exit(0)\n")
     with pytest.raises(ManifestError, match="quits_green2"):
         resolve_trainer("quits_green2:train", search_path=tmp_path)
