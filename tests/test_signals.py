@@ -6,7 +6,8 @@ SIGTERM (its cleanup runs) before SIGKILL; a writer killed mid-write leaves no t
 after the rerun; after a SIGKILL of the runner and a rerun the seed files equal a clean run's
 byte for byte, and the index equals it except ``wall_seconds`` and ``source``. Each test failed
 on the code before the fix (exit -15/-2 with a KeyboardInterrupt traceback; no ``--time-limit``
-on verify and SIGKILL at once; temporary files left; ...).
+on verify and SIGKILL at once; temporary files left; ...). Exit 130 is 128 + SIGINT's number, the
+status shells such as bash give a command ended by Ctrl-C (common practice).
 """
 
 from __future__ import annotations
